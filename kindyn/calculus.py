@@ -1,0 +1,73 @@
+"""Vector calculus on spectral arrays (half grid, axis order ``(component, x, y, z)``).
+
+All functions take the :class:`~kindyn.box.Box` for the wavenumbers and write into ``out`` when it
+is given (hot paths) or return a new array. Derivatives are exact for the represented modes:
+``d/dx_j -> i k_j``.
+"""
+
+from __future__ import annotations
+
+import numpy as np
+
+from kindyn.box import Box
+
+
+def curl_hat(v_hat: np.ndarray, box: Box, out: np.ndarray | None = None) -> np.ndarray:
+    """``(curl v)_hat = i k x v_hat``; ``out`` must not alias ``v_hat``."""
+    kx, ky, kz = box.wavenumbers
+    if out is None:
+        out = np.empty_like(v_hat)
+    vx, vy, vz = v_hat
+    np.multiply(ky, vz, out=out[0]); out[0] -= kz * vy
+    np.multiply(kz, vx, out=out[1]); out[1] -= kx * vz
+    np.multiply(kx, vy, out=out[2]); out[2] -= ky * vx
+    out *= 1j
+    return out
+
+
+def divergence_hat(v_hat: np.ndarray, box: Box) -> np.ndarray:
+    """``(div v)_hat = i k . v_hat`` (scalar half-grid array)."""
+    kx, ky, kz = box.wavenumbers
+    return 1j * (kx * v_hat[0] + ky * v_hat[1] + kz * v_hat[2])
+
+
+def solenoidal_part_hat(v_hat: np.ndarray, box: Box) -> np.ndarray:
+    """Leray projection ``v - k (k . v)/|k|^2`` (the k = 0 mode is left unchanged)."""
+    kx, ky, kz = box.wavenumbers
+    k2 = box.k_squared.copy()
+    k2[0, 0, 0] = 1.0
+    k_dot_v = (kx * v_hat[0] + ky * v_hat[1] + kz * v_hat[2]) / k2
+    return np.stack([v_hat[0] - kx * k_dot_v, v_hat[1] - ky * k_dot_v, v_hat[2] - kz * k_dot_v])
+
+
+def inverse_curl_hat(v_hat: np.ndarray, box: Box) -> np.ndarray:
+    """Solenoidal ``a`` with ``curl a = v`` for solenoidal ``v``: ``a_hat = i k x v_hat / |k|^2``."""
+    k2 = box.k_squared.copy()
+    k2[0, 0, 0] = np.inf
+    return curl_hat(v_hat, box) / k2
+
+
+def cross(a: np.ndarray, b: np.ndarray, out: np.ndarray, scratch: np.ndarray | None = None) -> np.ndarray:
+    """Pointwise ``a x b`` of physical ``(3, ...)`` arrays into ``out`` (must alias neither).
+
+    ``scratch`` (shape of one component) avoids a temporary per component in hot loops.
+    """
+    if scratch is None:
+        scratch = np.empty(out.shape[1:], dtype=out.dtype)
+    for i, j, k in ((0, 1, 2), (1, 2, 0), (2, 0, 1)):
+        np.multiply(a[j], b[k], out=out[i])
+        np.multiply(a[k], b[j], out=scratch)
+        out[i] -= scratch
+    return out
+
+
+def mean_square(v_hat: np.ndarray, box: Box) -> float:
+    """Volume average ``<|v|^2>`` from Fourier coefficients (Parseval, half-grid weights)."""
+    w = box.parseval_weights
+    return float(sum(np.sum(w * (c.real**2 + c.imag**2)) for c in v_hat))
+
+
+def inner(a_hat: np.ndarray, b_hat: np.ndarray, box: Box) -> float:
+    """Volume average ``<a . b>`` of two real fields from their Fourier coefficients."""
+    w = box.parseval_weights
+    return float(sum(np.sum(w * (np.conj(a) * b).real) for a, b in zip(a_hat, b_hat)))

@@ -1,0 +1,1 @@
+"""One module per ``kindyn`` command (see :mod:`kindyn.cli`)."""

@@ -1,0 +1,47 @@
+"""Energy and shell spectra of a vector field from its Fourier coefficients.
+
+``E = <|B|^2>/2`` (volume average). The shell spectrum sums ``|b_hat|^2/2`` (Parseval weights)
+over shells ``|k| in [(s - 1/2) dk, (s + 1/2) dk)`` with ``dk = 2 pi / max(L)``, so that
+``sum_s E_s = E``. Shell ``s`` is centred on ``k_s = s dk``.
+"""
+
+from __future__ import annotations
+
+import numpy as np
+
+from kindyn.calculus import mean_square
+
+
+def energy(b_hat: np.ndarray, box) -> float:
+    """Magnetic energy ``<|B|^2>/2``."""
+    return 0.5 * mean_square(b_hat, box)
+
+
+def shell_indices(box) -> np.ndarray:
+    """Integer shell index of every half-grid mode."""
+    dk = box.smallest_wavenumber
+    return np.rint(np.sqrt(box.k_squared) / dk).astype(int)
+
+
+def shell_spectrum(b_hat: np.ndarray, box) -> tuple[np.ndarray, np.ndarray]:
+    """``(k_s, E_s)``: shell wavenumbers and energy per shell (sums to :func:`energy`)."""
+    shells = shell_indices(box)
+    density = 0.5 * box.parseval_weights * sum(c.real**2 + c.imag**2 for c in b_hat)
+    spectrum = np.bincount(shells.ravel(), weights=density.ravel())
+    return np.arange(spectrum.size) * box.smallest_wavenumber, spectrum
+
+
+def cutoff_ratio(b_hat: np.ndarray, box) -> float:
+    """Energy in the last fully kept shell over the largest shell energy.
+
+    The last fully kept shell is the largest ``k_s`` not above the smallest 2/3-rule cut-off
+    wavenumber. A ratio that is not small (default threshold 0.03, run.resolution_threshold) means the field has structure
+    the grid cannot hold: under-resolved runs can show spurious growth.
+    """
+    k, spectrum = shell_spectrum(b_hat, box)
+    k_cut = min(box.max_kept_wavenumbers)
+    last = int(np.floor(k_cut / box.smallest_wavenumber + 1e-9))
+    peak = spectrum[1:].max() if spectrum.size > 1 else 0.0
+    if peak <= 0 or last < 1:
+        return 0.0
+    return float(spectrum[min(last, spectrum.size - 1)] / peak)

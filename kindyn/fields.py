@@ -1,0 +1,54 @@
+"""Initial magnetic fields (spectral, dealiased, solenoidal).
+
+The random field is the curl of a seeded Gaussian vector potential, filtered with the spectrum
+profile ``|b_hat(k)| ~ (k/k_0) exp(-(k/k_0)^2)`` so that its energy peaks near ``k_0``; it has zero
+mean (``b_hat(0) = 0``), is exactly solenoidal, lies in the 2/3-rule band and has unit energy.
+Same seed, same grid and box: the same field (numpy Generator, no global state).
+"""
+
+from __future__ import annotations
+
+import numpy as np
+
+from kindyn.calculus import curl_hat
+from kindyn.diagnostics.spectra import energy
+from kindyn.flows.base import sample_velocity
+from kindyn.transforms import spectral_from_physical
+
+
+def random_field_hat(box, engine, seed: int, peak_wavenumber: float) -> np.ndarray:
+    rng = np.random.default_rng(seed)
+    potential_hat = spectral_from_physical(engine, rng.standard_normal((3, *box.shape)))
+    k = np.sqrt(box.k_squared)
+    profile = np.exp(-((k / peak_wavenumber) ** 2)) * box.dealias_mask
+    b_hat = curl_hat(potential_hat * profile, box)
+    b_hat[:, 0, 0, 0] = 0
+    return b_hat / np.sqrt(energy(b_hat, box))
+
+
+def flow_field_hat(box, engine, flow, t: float = 0.0) -> np.ndarray:
+    """``B = u(t)`` on the dealiased band (used by exact tests: for a Beltrami flow it only decays)."""
+    b_hat = spectral_from_physical(engine, sample_velocity(flow, box, t)) * box.dealias_mask
+    return b_hat / np.sqrt(energy(b_hat, box))
+
+
+def probe_indices(box, count: int = 96, seed: int = 20261201) -> np.ndarray:
+    """Flat indices (into one component of the half grid) of the probe modes.
+
+    The lowest kept modes (``|m_i| <= 2``) plus a seeded random choice of other kept modes, so that
+    every mode structure projects on the probes.
+    """
+    mx, my, mz = box.mode_numbers
+    kept = np.broadcast_to(box.dealias_mask, box.spectral_shape)
+    low = kept & (np.abs(mx) <= 2) & (np.abs(my) <= 2) & (mz <= 2)
+    flat_low = np.flatnonzero(low)
+    others = np.setdiff1d(np.flatnonzero(kept), flat_low)
+    rng = np.random.default_rng(seed)
+    extra = rng.choice(others, size=min(count, others.size), replace=False) if others.size else others
+    return np.sort(np.concatenate([flat_low, extra]))
+
+
+def probe_vector(b_hat: np.ndarray, indices: np.ndarray) -> np.ndarray:
+    """Real probe vector: real and imaginary parts of the probe coefficients of all components."""
+    picked = b_hat.reshape(b_hat.shape[0], -1)[:, indices]
+    return np.concatenate([picked.real.ravel(), picked.imag.ravel()]).astype(float)

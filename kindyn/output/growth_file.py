@@ -1,0 +1,93 @@
+"""The netCDF record of one growth-rate run (``kindyn run``).
+
+Contents: the sampled time series (``time``, ``magnetic_energy``, the running growth estimate), the
+final field in physical space on ``(x, y, z)`` with no endpoint, the magnetic energy shell spectrum,
+and global attributes with the result, the resolved case (JSON) and its text, and the kindyn
+version.
+"""
+
+from __future__ import annotations
+
+import json
+
+import numpy as np
+
+from kindyn import __version__
+from kindyn.output.netcdf import CONVENTIONS, add_grid, add_variable, atomic_dataset, set_attributes
+
+
+def result_summary(case, outcome) -> dict:
+    """The numbers a user asks for first (also printed by ``--json``)."""
+    e = outcome.estimate
+    flow = case.flow
+    return {
+        "growth_rate": _finite(e.growth_rate),
+        "growth_rate_error": _finite(e.error),
+        "frequency": _finite(e.frequency),
+        "growth_rate_snapshot": _finite(e.growth_rate_snapshot),
+        "converged": bool(e.converged),
+        "stop_reason": outcome.stop_reason,
+        "note": e.note,
+        "Rm": case.Rm,
+        "eta": case.eta,
+        "U": flow.speed,
+        "k_f": flow.wavenumber,
+        "time": outcome.time,
+        "steps": outcome.steps,
+        "time_step": outcome.timing.dt,
+        "cutoff_ratio": outcome.cutoff_ratio,
+        "resolution_warning": bool(outcome.resolution_warning),
+        "mean_field_kept": False,
+        "wall_seconds": outcome.wall_seconds,
+        "resumed": outcome.resumed,
+    }
+
+
+def _finite(x):
+    x = float(x)
+    return x if np.isfinite(x) else None
+
+
+def write_growth_file(path, case, outcome, field_physical=None, extra=None) -> None:
+    """Write the run record to ``path`` atomically (``field_physical``: ``(3, nx, ny, nz)`` or None)."""
+    rec = outcome.record
+    summary = result_summary(case, outcome)
+    with atomic_dataset(path) as ds:
+        set_attributes(ds, {
+            "Conventions": CONVENTIONS,
+            "title": f"kindyn kinematic dynamo run: {case.name}",
+            "source": f"kindyn {__version__}",
+            "kindyn_version": __version__,
+            "case_file": case.path,
+            "case_text": case.text,
+            "case_overrides": list(case.overrides),
+            "case_resolved": json.dumps(case.resolved, sort_keys=True),
+            "flow_type": case.flow_type,
+            "uniform_field_mode": "excluded: B has zero mean initially; the k = 0 mode is neutral and stays zero",
+            "caution": "an under-resolved run can show spurious growth; check resolution_warning and "
+                       "repeat on a finer grid",
+            **{f"result_{k}": v for k, v in summary.items()},
+            **(extra or {}),
+        })
+        ds.createDimension("time", len(rec.times))
+        add_variable(ds, "time", ("time",), np.asarray(rec.times), units="1", long_name="simulation time",
+                     standard_name="time", axis="T")
+        add_variable(ds, "magnetic_energy_log", ("time",), np.asarray(rec.log_energy),
+                     long_name="natural logarithm of the magnetic energy <|B|^2>/2 (renormalisation undone)")
+        ds.createDimension("estimate", len(rec.estimate_times))
+        add_variable(ds, "estimate_time", ("estimate",), np.asarray(rec.estimate_times), long_name="time of growth estimate")
+        add_variable(ds, "growth_rate_estimate", ("estimate",), np.asarray(rec.estimate_rates, float),
+                     long_name="running estimate of the amplitude growth rate gamma", units="1")
+        add_variable(ds, "growth_rate_estimate_error", ("estimate",), np.asarray(rec.estimate_errors, float),
+                     long_name="uncertainty of the running growth estimate")
+        k, spectrum = outcome.spectrum
+        ds.createDimension("wavenumber", k.size)
+        add_variable(ds, "wavenumber", ("wavenumber",), k, long_name="shell wavenumber |k|")
+        add_variable(ds, "magnetic_energy_spectrum", ("wavenumber",), spectrum,
+                     long_name="shell spectrum of the final (unit-energy) magnetic field")
+        if field_physical is not None:
+            add_grid(ds, case.box)
+            ds.createDimension("component", 3)
+            for i, axis in enumerate("xyz"):
+                add_variable(ds, f"magnetic_field_{axis}", ("x", "y", "z"), field_physical[i],
+                             long_name=f"{axis} component of the final magnetic field (normalised to unit energy)")

@@ -1,0 +1,192 @@
+"""One kinematic run: from a validated case to a converged growth rate.
+
+Data flow: case -> flow (already built by the case loader) -> solver (engine, induction operator,
+stepper) -> samples -> growth estimate -> :class:`RunOutcome`. Output files are written by the
+caller (:mod:`kindyn.output`); this module only reads and writes the checkpoint it is handed.
+
+The run is linear, so the field is renormalised to unit energy at every sample and the removed
+log-amplitude ``a`` is accumulated: the true energy is ``E exp(2a)`` and never overflows. The uniform
+(k = 0) part of ``B`` is zero initially and stays zero (it is a neutral mode of the periodic problem,
+excluded from every measurement).
+"""
+
+from __future__ import annotations
+
+import math
+import time as wallclock
+from dataclasses import dataclass, field
+
+import numpy as np
+
+from kindyn.diagnostics.growth import GrowthEstimate, estimate_growth
+from kindyn.diagnostics.spectra import cutoff_ratio, energy, shell_spectrum
+from kindyn.errors import NumericalError
+from kindyn.fields import flow_field_hat, probe_indices, probe_vector, random_field_hat
+from kindyn.induction import InductionOperator
+from kindyn.stepping import TABLEAUX, IntegratingFactorStepper
+from kindyn.timestep import Timing, choose_timing
+from kindyn.transforms import TransformSettings, make_engine
+
+RUNAWAY_LOG_ENERGY_JUMP = 200.0
+CHECKS_PER_ESTIMATE = 4
+ESTIMATES_PER_RECORD = 40  # estimate at least every 1/40 of the record so far
+
+
+@dataclass
+class Record:
+    """Samples of one run (lists grow as it goes; arrays via :meth:`arrays`)."""
+
+    times: list = field(default_factory=list)
+    log_energy: list = field(default_factory=list)
+    log_amplitude: list = field(default_factory=list)
+    probes: list = field(default_factory=list)
+    estimate_times: list = field(default_factory=list)
+    estimate_rates: list = field(default_factory=list)
+    estimate_errors: list = field(default_factory=list)
+
+    def strobed(self, every: int):
+        """Samples at whole multiples of ``every`` (whole flow periods), as arrays."""
+        idx = slice(0, None, every)
+        return (np.asarray(self.times)[idx], np.asarray(self.log_energy)[idx],
+                np.asarray(self.probes)[idx], np.asarray(self.log_amplitude)[idx])
+
+
+@dataclass(frozen=True)
+class RunOutcome:
+    estimate: GrowthEstimate
+    record: Record
+    field_hat: np.ndarray
+    spectrum: tuple[np.ndarray, np.ndarray]
+    cutoff_ratio: float
+    resolution_warning: bool
+    steps: int
+    time: float
+    timing: Timing
+    stop_reason: str
+    wall_seconds: float
+    resumed: bool
+
+
+@dataclass
+class Solver:
+    """The pieces that advance ``b_hat``: engine, induction operator and stepper."""
+
+    box: object
+    engine: object
+    operator: InductionOperator
+    stepper: IntegratingFactorStepper
+
+
+def build_solver(box, flow, eta: float, transforms: TransformSettings, scheme: str = "rk4") -> Solver:
+    engine = make_engine(box, transforms)
+    operator = InductionOperator(box, flow, engine, eta)
+    stepper = IntegratingFactorStepper(operator, operator.decay_rates, TABLEAUX[scheme],
+                                       engine.spectral.shape, engine.spectral.dtype)
+    return Solver(box, engine, operator, stepper)
+
+
+def transform_settings(case) -> TransformSettings:
+    n = case.numerics
+    return TransformSettings(n.fft, n.threads, n.planning, n.precision)
+
+
+def initial_field(case, solver) -> np.ndarray:
+    m = case.magnetic
+    if m.initial_field == "flow":
+        b_hat = flow_field_hat(case.box, solver.engine, case.flow)
+    else:
+        peak = m.initial_peak or case.flow.wavenumber
+        b_hat = random_field_hat(case.box, solver.engine, m.seed, peak)
+    return b_hat.astype(solver.engine.spectral.dtype)
+
+
+def default_tolerance(case) -> float:
+    return case.run.tolerance or 1e-4 * case.flow.speed * case.flow.wavenumber
+
+
+def default_max_time(case) -> float:
+    return case.run.max_time or 2000.0 / (case.flow.speed * case.flow.wavenumber)
+
+
+def run_growth(case, progress=None, checkpoint=None) -> RunOutcome:
+    """Integrate until the growth rate converges (or a guard stops the run).
+
+    ``progress(t, estimate, tolerance)`` is called now and then; ``checkpoint`` (optional) has
+    ``load(case) -> dict | None`` and ``save(case, state)`` and makes a killed run resumable.
+    """
+    box, flow, settings = case.box, case.flow, case.run
+    solver = build_solver(box, flow, case.eta, transform_settings(case), settings.scheme)
+    timing = choose_timing(flow, box, settings.cfl, settings.time_step, settings.sample_interval)
+    tolerance, max_time = default_tolerance(case), default_max_time(case)
+    indices = probe_indices(box)
+    record, t, step, log_amp = Record(), 0.0, 0, 0.0
+    state = checkpoint.load(case) if checkpoint else None
+    if state:
+        b_hat = state["field_hat"].astype(solver.engine.spectral.dtype)
+        t, step, log_amp, record = state["time"], state["step"], state["log_amplitude"], state["record"]
+    else:
+        b_hat = initial_field(case, solver)
+    started, last_save, last_report = wallclock.time(), wallclock.time(), 0.0
+    estimate = GrowthEstimate(math.nan, math.inf, math.nan, False, math.nan, (0.0, 0.0), 0, "not started")
+    stop_reason = ""
+    samples_since_estimate = 0
+    if not record.times:
+        _sample(record, b_hat, box, t, log_amp, indices)
+    while True:
+        for _ in range(timing.steps_per_sample):
+            solver.stepper.step(t, b_hat, timing.dt)
+            step += 1
+            t = step * timing.dt
+        log_amp = _sample(record, b_hat, box, t, log_amp, indices, step)
+        samples_since_estimate += 1
+        due = max(CHECKS_PER_ESTIMATE, len(record.times) // ESTIMATES_PER_RECORD)
+        if samples_since_estimate >= due * timing.samples_per_strobe:
+            samples_since_estimate = 0
+            estimate = estimate_growth(*record.strobed(timing.samples_per_strobe), tolerance=tolerance)
+            record.estimate_times.append(t)
+            record.estimate_rates.append(estimate.growth_rate)
+            record.estimate_errors.append(estimate.error)
+            if estimate.converged and t >= settings.min_time:
+                stop_reason = "converged"
+                break
+        if t >= max_time:
+            stop_reason = f"reached max_time = {max_time:g} before converging"
+            break
+        if step >= settings.max_steps:
+            stop_reason = f"reached max_steps = {settings.max_steps} before converging"
+            break
+        now = wallclock.time()
+        if progress and now - last_report > 2.0:
+            progress(t, estimate, tolerance)
+            last_report = now
+        if checkpoint and now - last_save > settings.checkpoint_seconds:
+            checkpoint.save(case, {"field_hat": b_hat, "time": t, "step": step,
+                                   "log_amplitude": log_amp, "record": record})
+            last_save = now
+    if record.estimate_times and record.estimate_times[-1] != t:
+        estimate = estimate_growth(*record.strobed(timing.samples_per_strobe), tolerance=tolerance)
+    ratio = cutoff_ratio(b_hat, box)
+    return RunOutcome(estimate, record, b_hat, shell_spectrum(b_hat, box), ratio,
+                      ratio > settings.resolution_threshold, step, t, timing, stop_reason,
+                      wallclock.time() - started, bool(state))
+
+
+def _sample(record: Record, b_hat, box, t, log_amp, indices, step=0) -> float:
+    """Record one sample, renormalise ``b_hat`` to unit energy, return the new log-amplitude."""
+    e = energy(b_hat, box)
+    previous = record.log_energy[-1] if record.log_energy else None
+    if not math.isfinite(e) or e <= 0:
+        raise NumericalError(f"magnetic energy became {e} at step {step}, t = {t:.6g} "
+                             f"(last finite ln E = {previous}); reduce run.cfl or check the flow")
+    log_energy = math.log(e) + 2 * log_amp
+    if previous is not None and log_energy - previous > RUNAWAY_LOG_ENERGY_JUMP:
+        raise NumericalError(f"runaway growth at step {step}, t = {t:.6g}: ln E jumped from "
+                             f"{previous:.4g} to {log_energy:.4g} in one sample; the time step is unstable "
+                             "(reduce run.cfl) or the grid is far too coarse")
+    record.times.append(t)
+    record.log_energy.append(log_energy)
+    record.log_amplitude.append(log_amp)
+    record.probes.append(probe_vector(b_hat, indices) / math.sqrt(e))
+    scale = 1.0 / math.sqrt(e)
+    b_hat *= scale
+    return log_amp + 0.5 * math.log(e)
