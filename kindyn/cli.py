@@ -14,7 +14,7 @@ import sys
 from kindyn import __version__
 from kindyn.errors import KindynError, NumericalError
 
-COMMANDS = ("run", "flow", "testfield", "sweep", "modes")
+COMMANDS = ("run", "ensemble", "flow", "testfield", "sweep", "modes")
 
 
 def _available_commands():

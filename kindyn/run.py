@@ -17,6 +17,7 @@ import time as wallclock
 from dataclasses import dataclass, field
 
 import numpy as np
+from threadpoolctl import threadpool_limits
 
 from kindyn.diagnostics.growth import GrowthEstimate, estimate_growth
 from kindyn.diagnostics.spectra import cutoff_ratio, energy, shell_spectrum
@@ -142,7 +143,7 @@ def run_growth(case, progress=None, checkpoint=None) -> RunOutcome:
         due = max(CHECKS_PER_ESTIMATE, len(record.times) // ESTIMATES_PER_RECORD)
         if samples_since_estimate >= due * timing.samples_per_strobe:
             samples_since_estimate = 0
-            estimate = estimate_growth(*record.strobed(timing.samples_per_strobe), tolerance=tolerance)
+            estimate = _estimate(record, timing, tolerance)
             record.estimate_times.append(t)
             record.estimate_rates.append(estimate.growth_rate)
             record.estimate_errors.append(estimate.error)
@@ -164,11 +165,17 @@ def run_growth(case, progress=None, checkpoint=None) -> RunOutcome:
                                    "log_amplitude": log_amp, "record": record})
             last_save = now
     if record.estimate_times and record.estimate_times[-1] != t:
-        estimate = estimate_growth(*record.strobed(timing.samples_per_strobe), tolerance=tolerance)
+        estimate = _estimate(record, timing, tolerance)
     ratio = cutoff_ratio(b_hat, box)
     return RunOutcome(estimate, record, b_hat, shell_spectrum(b_hat, box), ratio,
                       ratio > settings.resolution_threshold, step, t, timing, stop_reason,
                       wallclock.time() - started, bool(state))
+
+
+def _estimate(record: Record, timing: Timing, tolerance: float) -> GrowthEstimate:
+    # small dense linear algebra: multithreaded BLAS is many times slower here than one thread
+    with threadpool_limits(limits=1, user_api="blas"):
+        return estimate_growth(*record.strobed(timing.samples_per_strobe), tolerance=tolerance)
 
 
 def _sample(record: Record, b_hat, box, t, log_amp, indices, step=0) -> float:

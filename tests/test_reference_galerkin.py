@@ -302,6 +302,8 @@ def test_floquet_galloway_proctor_frame_change_and_order():
     mus = {s: rg.floquet_multipliers(lab, K, kz, eta, M, T, steps=s)[:4] for s in (8, 16, 32)}
     mu_moving = rg.floquet_multipliers(moving, K, kz, eta, M, T, steps=32)[:4]
     np.testing.assert_allclose(mu_moving, mus[32], rtol=1e-4)
+    mu_steady = rg.floquet_multipliers(lambda t: roberts, K, kz, eta, M, T, steps=1)[:4]
+    assert np.min(np.abs(mu_steady - mus[32]) / np.abs(mus[32])) > 0.1  # the frame velocity matters
     e1 = np.abs(mus[8][0] - mus[32][0])
     e2 = np.abs(mus[16][0] - mus[32][0])
     assert 8.0 < e1 / e2 < 40.0  # (256 - 1)/(16 - 1) = 17 for an order-4 scheme

@@ -59,16 +59,21 @@ def snapshot_eigenvalue(times, probes, log_amplitudes, max_rank: int = 16) -> co
     scale = np.exp(np.asarray(log_amplitudes) - log_amplitudes[-1])
     Z = (np.asarray(probes, float) * scale[:, None]).T
     X, Y = Z[:, :-1], Z[:, 1:]
-    U, s, Vh = np.linalg.svd(X, full_matrices=False)
+    # SVD by the method of snapshots (eigen-decomposition of the small Gram matrix X^T X):
+    # singular values below sqrt(machine epsilon) * s_max are lost, hence the 1e-7 cut.
+    s2, V = np.linalg.eigh(X.T @ X)
+    order = np.argsort(s2)[::-1]
+    s = np.sqrt(np.clip(s2[order], 0.0, None))
+    V = V[:, order]
     if s.size == 0 or s[0] == 0:
         return complex(np.nan, np.nan)
-    r = int(min(max_rank, np.count_nonzero(s > s[0] * 1e-10), max(1, X.shape[1] // 2)))
-    Ur, sr, Vr = U[:, :r], s[:r], Vh[:r].T
+    r = int(min(max_rank, np.count_nonzero(s > s[0] * 1e-7), max(1, X.shape[1] // 2)))
+    sr, Vr = s[:r], V[:, :r]
+    Ur = (X @ Vr) / sr
     reduced = (Ur.T @ Y @ Vr) / sr
     lam, W = np.linalg.eig(reduced)
-    modes = (Y @ Vr / sr) @ W
-    weights = np.abs(np.linalg.lstsq(modes, Z[:, -1].astype(complex), rcond=None)[0])
-    weights *= np.linalg.norm(modes, axis=0)
+    # amplitude of each reduced eigenvector in the last snapshot (projected DMD modes)
+    weights = np.abs(np.linalg.solve(W, Ur.T @ Z[:, -1]))
     significant = weights >= 1e-6 * weights.max()
     with np.errstate(divide="ignore"):
         p = np.log(lam.astype(complex)) / dt

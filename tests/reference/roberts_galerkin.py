@@ -53,6 +53,15 @@ Symmetry used in the self-test: for real ``u``, if ``B`` is a solution so is
 ``conj(B)``, hence ``spectrum(-kz) = conj(spectrum(kz))`` for every real flow (and
 ``floquet(-kz) = conj(floquet(kz))``).
 
+Optional exact speed-up: when the flow is invariant under a rotation by 90 degrees
+about a vertical axis (the Roberts flows are; see ``roberts_rotation_centre``),
+``leading_eigenvalues(..., c4_centre=...)`` solves the four symmetry blocks of ``L``
+separately (same eigenvalues, ~5-15x faster at M = 16). Without it every solve is one
+plain dense ``eigvals`` of the solenoidal matrix.
+
+Truncation: for the Roberts "sum" flow (U = k = 1) the leading eigenvalue is
+converged to < 1e-10 at M = 12 for eta >= 0.1 and at M = 16 for eta = 0.05.
+
 Vector layout
 -------------
 Cartesian vectors are stored mode-major: index ``3*j + c`` with component
