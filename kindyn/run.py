@@ -26,7 +26,7 @@ from kindyn.fields import flow_field_hat, probe_indices, probe_vector, random_fi
 from kindyn.induction import InductionOperator
 from kindyn.stepping import TABLEAUX, IntegratingFactorStepper
 from kindyn.timestep import Timing, choose_timing
-from kindyn.transforms import TransformSettings, make_engine
+from kindyn.transforms import TransformSettings, make_engine, physical_from_spectral
 
 RUNAWAY_LOG_ENERGY_JUMP = 200.0
 CHECKS_PER_ESTIMATE = 4
@@ -57,6 +57,7 @@ class RunOutcome:
     estimate: GrowthEstimate
     record: Record
     field_hat: np.ndarray
+    field: np.ndarray  # the final field on the grid, (3, nx, ny, nz), unit energy
     spectrum: tuple[np.ndarray, np.ndarray]
     cutoff_ratio: float
     resolution_warning: bool
@@ -167,7 +168,8 @@ def run_growth(case, progress=None, checkpoint=None) -> RunOutcome:
     if record.estimate_times and record.estimate_times[-1] != t:
         estimate = _estimate(record, timing, tolerance)
     ratio = cutoff_ratio(b_hat, box)
-    return RunOutcome(estimate, record, b_hat, shell_spectrum(b_hat, box), ratio,
+    field = physical_from_spectral(solver.engine, b_hat)
+    return RunOutcome(estimate, record, b_hat, field, shell_spectrum(b_hat, box), ratio,
                       ratio > settings.resolution_threshold, step, t, timing, stop_reason,
                       wallclock.time() - started, bool(state))
 

@@ -105,9 +105,16 @@ def parse_override(text: str, file: str = "--set") -> tuple[list[str], object]:
     return parts, value
 
 
+EXCLUSIVE_KEYS = {("magnetic", "eta"): ("magnetic", "Rm"), ("magnetic", "Rm"): ("magnetic", "eta")}
+
+
 def apply_overrides(data: dict, overrides) -> dict:
+    """Apply ``section.key=value`` overrides; setting eta drops Rm from the file and vice versa."""
     for text in overrides:
         parts, value = parse_override(text)
+        rival = EXCLUSIVE_KEYS.get(tuple(parts))
+        if rival and isinstance(data.get(rival[0]), dict):
+            data[rival[0]].pop(rival[1], None)
         node = data
         for part in parts[:-1]:
             node = node.setdefault(part, {})

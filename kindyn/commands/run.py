@@ -8,7 +8,6 @@ from kindyn.commands.common import add_case_arguments, case_from_args, output_fo
 from kindyn.output.checkpoint import Checkpoint
 from kindyn.output.growth_file import result_summary, write_growth_file
 from kindyn.run import run_growth
-from kindyn.transforms import physical_from_spectral
 
 HELP = "integrate the induction equation until the growth rate converges"
 
@@ -47,13 +46,7 @@ def execute(args) -> int:
     if outcome.resolution_warning:
         caution = RESOLUTION_CAUTION.format(ratio=outcome.cutoff_ratio, threshold=case.run.resolution_threshold)
         say(f"kindyn run: warning: {caution}")
-    field = None
-    if case.output.field:
-        from kindyn.run import build_solver, transform_settings  # noqa: F401  (engine reuse is not worth it here)
-        from kindyn.transforms import make_engine
-
-        engine = make_engine(case.box, transform_settings(case))
-        field = physical_from_spectral(engine, outcome.field_hat)
+    field = outcome.field if case.output.field else None
     write_growth_file(nc_path, case, outcome, field, extra={"resolution_caution": caution})
     if case.output.figure:
         from kindyn.output.figures import growth_figure
