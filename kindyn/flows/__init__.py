@@ -12,6 +12,9 @@ from __future__ import annotations
 from kindyn.flows.base import sample_velocity
 from kindyn.flows.beltrami import ABCFlow, BeltramiSumFlow
 from kindyn.flows.cellular import GallowayProctorFlow, RobertsFlow, TaylorGreenFlow
+from kindyn.flows.random_helical import RandomHelicalFlow
+from kindyn.flows.user import CallableFlow, FormulaFlow
+from kindyn.flows.velocity_file import VelocityFileFlow
 
 FLOW_TYPES: dict[str, type] = {
     "abc": ABCFlow,
@@ -19,6 +22,10 @@ FLOW_TYPES: dict[str, type] = {
     "roberts": RobertsFlow,
     "galloway-proctor": GallowayProctorFlow,
     "taylor-green": TaylorGreenFlow,
+    "random-helical": RandomHelicalFlow,
+    "formula": FormulaFlow,
+    "callable": CallableFlow,
+    "velocity-file": VelocityFileFlow,
 }
 
 

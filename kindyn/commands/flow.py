@@ -1,0 +1,119 @@
+"""``kindyn flow CASE.toml``: what flow the case describes: speeds, helicity, spectra, SOCA.
+
+Samples the flow at ``t = 0`` on the case's grid, prints the numbers of
+:mod:`kindyn.diagnostics.flow_stats` (``--json``: one object), writes ``NAME-flow.nc`` (velocity and
+spectra; readable back as a ``velocity-file`` flow) and ``NAME-flow.png`` (spectra).
+"""
+
+from __future__ import annotations
+
+from kindyn.commands.common import add_case_arguments, case_from_args, clean_number, output_folder, print_json, say
+from kindyn.diagnostics.flow_stats import flow_statistics, time_dependence
+from kindyn.flows.base import sample_velocity
+from kindyn.run import transform_settings
+from kindyn.transforms import make_engine, spectral_from_physical
+
+HELP = "describe the case's flow: u_rms, helicity, spectra, divergence and SOCA estimates"
+
+SOCA_CAUTION = ("SOCA (first-order smoothing) holds for Rm << 1; at Rm = {Rm:.3g} treat alpha_soca and "
+                "eta_t_soca as order-of-magnitude guides only")
+TIME_CAUTION = ("the steady-flow SOCA values do not apply to this {kind} flow (alpha_soca and eta_t_soca "
+                "are null); its correlation time is {tau}")
+BAND_CAUTION = ("{fraction:.3g} of <|u|^2> lies beyond the 2/3-rule band of this grid: the run would be "
+                "under-resolved (and under-resolved runs can show spurious growth)")
+
+
+def add_arguments(parser) -> None:
+    add_case_arguments(parser)
+
+
+def flow_summary(case, stats) -> dict:
+    """The numbers printed by ``--json`` (steady SOCA values are null for time-dependent flows)."""
+    flow = case.flow
+    kind, tau_c, note = time_dependence(flow)
+    steady = kind == "steady"
+    cautions = []
+    if steady and case.Rm > 1.0:
+        cautions.append(SOCA_CAUTION.format(Rm=case.Rm))
+    if not steady:
+        period = getattr(flow, "period", None)
+        known = f"not known (the flow is periodic with period {period:g})" if period else "not known"
+        cautions.append(TIME_CAUTION.format(kind=kind, tau=known if tau_c is None else f"{tau_c:g}"))
+    if stats.band_fraction > 1e-6:
+        cautions.append(BAND_CAUTION.format(fraction=stats.band_fraction))
+    k_f = flow.wavenumber
+    return {
+        "flow_type": case.flow_type,
+        "time_dependence": kind,
+        "time_note": note,
+        "snapshot_time": 0.0,
+        "u_rms": stats.u_rms,
+        "max_speed": stats.max_speed,
+        "mean_flow": stats.mean_flow,
+        "helicity": stats.helicity,
+        "omega_rms": stats.omega_rms,
+        "relative_helicity": stats.relative_helicity,
+        "divergence": stats.divergence,
+        "band_fraction": stats.band_fraction,
+        "U": flow.speed,
+        "k_f": k_f,
+        "Rm": case.Rm,
+        "Rm_rms": stats.u_rms / (case.eta * k_f),
+        "eta": case.eta,
+        "alpha_soca": clean_number(stats.alpha_soca) if steady else None,
+        "eta_t_soca": clean_number(stats.eta_t_soca) if steady else None,
+        "soca_applies": steady,
+        "period": getattr(flow, "period", None),
+        "renewal_time": getattr(flow, "renewal_time", None),
+        "correlation_time": tau_c,
+        "strouhal": None if tau_c is None else stats.u_rms * k_f * tau_c,
+        "cautions": cautions,
+    }
+
+
+def execute(args) -> int:
+    case = case_from_args(args)
+    out = output_folder(args)
+    box = case.box
+    u = sample_velocity(case.flow, box, 0.0)
+    engine = make_engine(box, transform_settings(case))
+    u_hat = spectral_from_physical(engine, u)
+    stats = flow_statistics(u, u_hat, box, case.eta)
+    summary = flow_summary(case, stats)
+    nc_path, png_path = out / f"{case.name}-flow.nc", out / f"{case.name}-flow.png"
+    from kindyn.output.flow_file import write_flow_file
+
+    write_flow_file(nc_path, case, summary, u, stats.wavenumbers, stats.energy_spectrum, stats.helicity_spectrum)
+    if case.output.figure:
+        from kindyn.output.figures_flow import flow_spectra_figure
+
+        flow_spectra_figure(png_path, stats.wavenumbers, stats.energy_spectrum, stats.helicity_spectrum,
+                            f"{case.name}: {case.flow_type} flow, grid {list(box.grid)}, t = 0",
+                            note="; ".join(summary["cautions"]))
+    summary["output"] = str(nc_path)
+    summary["figure"] = str(png_path) if case.output.figure else None
+    if args.json:
+        print_json({**summary, "spectra": {"k": stats.wavenumbers, "E": stats.energy_spectrum,
+                                           "H": stats.helicity_spectrum}})
+    else:
+        _print_human(summary)
+    return 0
+
+
+def _print_human(s: dict) -> None:
+    def num(value):
+        return "n/a" if value is None else f"{value:.6g}"
+
+    say(f"{s['flow_type']} flow ({s['time_dependence']}; numbers of the snapshot at t = 0)")
+    say(f"  u_rms = {num(s['u_rms'])}   max|u| = {num(s['max_speed'])}   |<u>| = {num(s['mean_flow'])}")
+    say(f"  U = {num(s['U'])}   k_f = {num(s['k_f'])}   eta = {num(s['eta'])}   Rm = U/(eta k_f) = {num(s['Rm'])}"
+        f"   Rm_rms = {num(s['Rm_rms'])}")
+    say(f"  <u.omega> = {num(s['helicity'])}   relative helicity = {num(s['relative_helicity'])}")
+    say(f"  ||div u||/||grad u|| = {num(s['divergence'])}   energy beyond the dealiased band: {num(s['band_fraction'])}")
+    say(f"  SOCA: alpha = {num(s['alpha_soca'])}   eta_t = {num(s['eta_t_soca'])}")
+    if s["time_note"]:
+        say(f"  time dependence: {s['time_note']}" +
+            (f"; Strouhal u_rms k_f tau_c = {s['strouhal']:.3g}" if s["strouhal"] is not None else ""))
+    for caution in s["cautions"]:
+        say(f"  caution: {caution}")
+    say(f"wrote {s['output']}" + (f" and {s['figure']}" if s["figure"] else ""))

@@ -1,0 +1,47 @@
+"""The netCDF record of ``kindyn flow``: the velocity on the grid, its shell spectra, its numbers.
+
+Contents: ``ux, uy, uz`` on ``(x, y, z)`` (periodic coordinates with no endpoint and a ``period``
+attribute, so the file is itself a valid ``velocity-file`` flow), the shell wavenumbers with the
+energy spectrum ``E_s`` and helicity spectrum ``H_s`` (``sum E_s = <|u|^2>/2``,
+``sum H_s = <u . omega>``), and global attributes with every number of the summary (prefixed
+``result_``), the cautions, the resolved case (JSON) and its text.
+"""
+
+from __future__ import annotations
+
+import json
+
+from kindyn import __version__
+from kindyn.output.netcdf import CONVENTIONS, add_grid, add_variable, atomic_dataset, set_attributes
+
+
+def write_flow_file(path, case, summary: dict, u, wavenumbers, energy_spectrum, helicity_spectrum,
+                    time: float = 0.0) -> None:
+    """Write the flow record atomically; ``u`` is the velocity ``(3, nx, ny, nz)`` at ``time``."""
+    scalars = {f"result_{k}": v for k, v in summary.items() if not isinstance(v, (dict, list))}
+    scalars["cautions"] = "; ".join(summary.get("cautions", [])) or "none"
+    with atomic_dataset(path) as ds:
+        set_attributes(ds, {
+            "Conventions": CONVENTIONS,
+            "title": f"kindyn flow diagnostics: {case.name}",
+            "source": f"kindyn {__version__}",
+            "kindyn_version": __version__,
+            "case_file": case.path,
+            "case_text": case.text,
+            "case_overrides": list(case.overrides),
+            "case_resolved": json.dumps(case.resolved, sort_keys=True),
+            "flow_type": case.flow_type,
+            "snapshot_time": float(time),
+            **scalars,
+        })
+        add_grid(ds, case.box)
+        for i, axis in enumerate("xyz"):
+            add_variable(ds, f"u{axis}", ("x", "y", "z"), u[i], long_name=f"{axis} component of the velocity "
+                         f"at t = {time:g}")
+        ds.createDimension("wavenumber", len(wavenumbers))
+        add_variable(ds, "wavenumber", ("wavenumber",), wavenumbers,
+                     long_name="shell wavenumber k_s = s dk, dk = 2 pi / max(L)")
+        add_variable(ds, "energy_spectrum", ("wavenumber",), energy_spectrum,
+                     long_name="kinetic energy per shell E_s (sum = <|u|^2>/2)")
+        add_variable(ds, "helicity_spectrum", ("wavenumber",), helicity_spectrum,
+                     long_name="kinetic helicity per shell H_s (sum = <u . omega>)")
