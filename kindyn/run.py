@@ -125,7 +125,7 @@ def run_growth(case, progress=None, checkpoint=None) -> RunOutcome:
     state = checkpoint.load(case) if checkpoint else None
     if state:
         b_hat = state["field_hat"].astype(solver.engine.spectral.dtype)
-        t, step, log_amp, record = state["time"], state["step"], state["log_amplitude"], state["record"]
+        t, step, log_amp, record = state["time"], state["step"], state["log_amplitude"], Record(**state["record"])
     else:
         b_hat = initial_field(case, solver)
     started, last_save, last_report = wallclock.time(), wallclock.time(), 0.0
@@ -144,7 +144,7 @@ def run_growth(case, progress=None, checkpoint=None) -> RunOutcome:
         due = max(CHECKS_PER_ESTIMATE, len(record.times) // ESTIMATES_PER_RECORD)
         if samples_since_estimate >= due * timing.samples_per_strobe:
             samples_since_estimate = 0
-            estimate = _estimate(record, timing, tolerance)
+            estimate = _estimate(record, timing, tolerance, flow)
             record.estimate_times.append(t)
             record.estimate_rates.append(estimate.growth_rate)
             record.estimate_errors.append(estimate.error)
@@ -166,15 +166,18 @@ def run_growth(case, progress=None, checkpoint=None) -> RunOutcome:
                                    "log_amplitude": log_amp, "record": record})
             last_save = now
     if record.estimate_times and record.estimate_times[-1] != t:
-        estimate = _estimate(record, timing, tolerance)
-    ratio = cutoff_ratio(b_hat, box)
+        estimate = _estimate(record, timing, tolerance, flow)
+    ratio = cutoff_ratio(b_hat, box, axes=(0, 1) if flow.z_independent else (0, 1, 2))
     field = physical_from_spectral(solver.engine, b_hat)
     return RunOutcome(estimate, record, b_hat, field, shell_spectrum(b_hat, box), ratio,
                       ratio > settings.resolution_threshold, step, t, timing, stop_reason,
                       wallclock.time() - started, bool(state))
 
 
-def _estimate(record: Record, timing: Timing, tolerance: float) -> GrowthEstimate:
+def _estimate(record: Record, timing: Timing, tolerance: float, flow=None) -> GrowthEstimate:
+    if getattr(flow, "stochastic", False):  # random time-dependent flow: block-averaged ln E increments
+        from kindyn.diagnostics.stochastic_growth import estimate_for_flow
+        return estimate_for_flow(record.times, record.log_energy, tolerance, flow)
     # small dense linear algebra: multithreaded BLAS is many times slower here than one thread
     with threadpool_limits(limits=1, user_api="blas"):
         return estimate_growth(*record.strobed(timing.samples_per_strobe), tolerance=tolerance)
@@ -195,7 +198,8 @@ def _sample(record: Record, b_hat, box, t, log_amp, indices, step=0) -> float:
     record.times.append(t)
     record.log_energy.append(log_energy)
     record.log_amplitude.append(log_amp)
-    record.probes.append(probe_vector(b_hat, indices) / math.sqrt(e))
+    # probes of the field before renormalisation: the true field is b_hat * exp(log_amp)
+    record.probes.append(probe_vector(b_hat, indices))
     scale = 1.0 / math.sqrt(e)
     b_hat *= scale
     return log_amp + 0.5 * math.log(e)

@@ -119,7 +119,7 @@ def apply_overrides(data: dict, overrides) -> dict:
         for part in parts[:-1]:
             node = node.setdefault(part, {})
             if not isinstance(node, dict):
-                raise CaseError("--set", text, value, f"{'.'.join(parts[:-1])} to be a section")
+                raise CaseError("--set", ".".join(parts), value, f"{'.'.join(parts[:-1])} to be a section")
         node[parts[-1]] = value
     return data
 

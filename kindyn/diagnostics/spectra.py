@@ -31,15 +31,17 @@ def shell_spectrum(b_hat: np.ndarray, box) -> tuple[np.ndarray, np.ndarray]:
     return np.arange(spectrum.size) * box.smallest_wavenumber, spectrum
 
 
-def cutoff_ratio(b_hat: np.ndarray, box) -> float:
+def cutoff_ratio(b_hat: np.ndarray, box, axes=(0, 1, 2)) -> float:
     """Energy in the last fully kept shell over the largest shell energy.
 
     The last fully kept shell is the largest ``k_s`` not above the smallest 2/3-rule cut-off
-    wavenumber. A ratio that is not small (default threshold 0.03, run.resolution_threshold) means the field has structure
-    the grid cannot hold: under-resolved runs can show spurious growth.
+    wavenumber of the ``axes`` considered. A ratio that is not small (default threshold 0.03, run.resolution_threshold) means the field has structure
+    the grid cannot hold: under-resolved runs can show spurious growth. Leave out an axis along
+    which the flow is uniform (``axes=(0, 1)`` for a z-independent flow): its Fourier sectors are
+    decoupled, each exact, and a grid keeping only ``kz = 0, +-2 pi/Lz`` is then not under-resolved.
     """
     k, spectrum = shell_spectrum(b_hat, box)
-    k_cut = min(box.max_kept_wavenumbers)
+    k_cut = min(box.max_kept_wavenumbers[i] for i in axes)
     last = int(np.floor(k_cut / box.smallest_wavenumber + 1e-9))
     peak = spectrum[1:].max() if spectrum.size > 1 else 0.0
     if peak <= 0 or last < 1:

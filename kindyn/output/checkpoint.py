@@ -43,16 +43,15 @@ class Checkpoint:
             ds.createVariable("probes", "f8", ("times", "probe"))[...] = probes
 
     def load(self, case):
-        from kindyn.run import Record
-
+        """The saved state (``"record"`` as a dict of the record's series, plain lists), or None."""
         if not self.path.exists():
             return None
         try:
             with netCDF4.Dataset(self.path) as ds:
                 if ds.getncattr("fingerprint") != case.fingerprint:
                     return None
-                record = Record(**{name: list(np.asarray(ds.variables[name][...], float)) for name in _SERIES})
-                record.probes = list(np.asarray(ds.variables["probes"][...], float))
+                record = {name: list(np.asarray(ds.variables[name][...], float)) for name in _SERIES}
+                record["probes"] = list(np.asarray(ds.variables["probes"][...], float))
                 field = np.asarray(ds.variables["field_real"][...]) + 1j * np.asarray(ds.variables["field_imag"][...])
                 return {"field_hat": field, "time": float(ds.getncattr("time")), "step": int(ds.getncattr("step")),
                         "log_amplitude": float(ds.getncattr("log_amplitude")), "record": record}
@@ -61,3 +60,5 @@ class Checkpoint:
 
     def remove(self) -> None:
         self.path.unlink(missing_ok=True)
+        # a run killed while writing a checkpoint leaves its temporary file behind
+        self.path.with_name(self.path.name + ".part").unlink(missing_ok=True)
