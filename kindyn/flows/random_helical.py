@@ -51,7 +51,6 @@ import math
 from dataclasses import dataclass, field
 
 import numpy as np
-from scipy.signal import lfilter
 
 from kindyn.errors import ParameterError
 from kindyn.flows.base import finite, positive
@@ -353,6 +352,8 @@ class RandomHelicalFlow:
         path = np.empty((OU_BLOCK + 1, s.size), dtype=complex)
         path[0] = start
         # path[j+1] = rho path[j] + kicks[j], as a first-order recursive filter along the block
+        from scipy.signal import lfilter  # imported here: scipy.signal costs ~1 s at start-up
+
         path[1:], _ = lfilter([1.0], [1.0, -rho], kicks, axis=0, zi=rho * start[None, :])
         return path
 
