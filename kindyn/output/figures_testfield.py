@@ -1,0 +1,70 @@
+"""Figures of test-field results (matplotlib, Agg backend): alpha and eta_t versus K or Rm, with SOCA.
+
+Plain arrays in, a PNG out (written atomically by :func:`kindyn.output.figures.save`).
+"""
+
+from __future__ import annotations
+
+import matplotlib
+
+matplotlib.use("Agg")
+import matplotlib.pyplot as plt  # noqa: E402
+import numpy as np  # noqa: E402
+
+from kindyn.output.figures import save  # noqa: E402
+
+CAUTION = "SOCA valid only at small Rm or short correlation time"
+
+
+def _errorbar(ax, x, y, err, **kw):
+    err = None if err is None or not np.any(np.isfinite(err)) else np.nan_to_num(np.asarray(err, float), nan=0.0)
+    ax.errorbar(x, y, yerr=err, capsize=3, **kw)
+
+
+def coefficients_versus_K(path, K, alpha, alpha_err, eta_t, eta_t_err, alpha_soca, eta_t_soca, title,
+                          fits=None, note: str = "") -> None:
+    """Two panels: alpha(K) and eta_t(K) (full, with error bars) beside SOCA, and fitted kernels.
+
+    ``fits`` (optional) maps ``"alpha"``, ``"eta_t"``, ``"alpha_soca"``, ``"eta_t_soca"`` to callables
+    ``K -> value`` drawn as lines.
+    """
+    K = np.asarray(K, float)
+    fig, axes = plt.subplots(1, 2, figsize=(9.6, 3.8))
+    fine = np.linspace(0.0, K.max() * 1.1, 200)
+    for ax, name, full, err, soca, label in ((axes[0], "alpha", alpha, alpha_err, alpha_soca, r"$\alpha$"),
+                                             (axes[1], "eta_t", eta_t, eta_t_err, eta_t_soca, r"$\eta_t$")):
+        _errorbar(ax, K, full, err, fmt="o", color="C0", label="test fields (full)")
+        ax.plot(K, soca, "s", mfc="none", color="C3", label="SOCA")
+        if fits:
+            for key, style, color in ((name, "-", "C0"), (name + "_soca", "--", "C3")):
+                if fits.get(key) is not None:
+                    ax.plot(fine, fits[key](fine), style, color=color, lw=1.0,
+                            label="Lorentzian fit" + (" (SOCA)" if key.endswith("soca") else ""))
+        ax.axhline(0.0, color="0.7", lw=0.6)
+        ax.set_xlabel("K")
+        ax.set_ylabel(label)
+        ax.legend(fontsize=8, loc="best")
+    fig.suptitle(title, fontsize=10)
+    fig.text(0.01, -0.02, CAUTION + ("; " + note if note else ""), fontsize=8, color="C3")
+    save(fig, path)
+
+
+def coefficients_versus_Rm(path, Rm, alpha, alpha_err, eta_t, eta_t_err, alpha_soca, eta_t_soca, title,
+                           note: str = "") -> None:
+    """alpha and eta_t versus Rm (log axis) beside SOCA, e.g. from a sweep over Rm at one K."""
+    Rm = np.asarray(Rm, float)
+    order = np.argsort(Rm)
+    fig, axes = plt.subplots(1, 2, figsize=(9.6, 3.8))
+    for ax, full, err, soca, label in ((axes[0], alpha, alpha_err, alpha_soca, r"$\alpha$"),
+                                       (axes[1], eta_t, eta_t_err, eta_t_soca, r"$\eta_t$")):
+        full, soca = np.asarray(full, float)[order], np.asarray(soca, float)[order]
+        err = None if err is None else np.asarray(err, float)[order]
+        _errorbar(ax, Rm[order], full, err, fmt="o-", color="C0", label="test fields (full)")
+        ax.plot(Rm[order], soca, "s--", mfc="none", color="C3", label="SOCA")
+        ax.set_xscale("log")
+        ax.set_xlabel("Rm")
+        ax.set_ylabel(label)
+        ax.legend(fontsize=8, loc="best")
+    fig.suptitle(title, fontsize=10)
+    fig.text(0.01, -0.02, CAUTION + ("; " + note if note else ""), fontsize=8, color="C3")
+    save(fig, path)

@@ -1,0 +1,230 @@
+"""All test-field results of one case: alpha, alpha(K), eta(K) with SOCA, errors, fits, closure.
+
+Data flow: case -> :class:`~kindyn.testfield.settings.TestFieldPlan` -> direct steady solves
+(:mod:`.steady`) or time integration (:mod:`.averaging`) -> tensors (:mod:`.extraction`) ->
+:class:`TestFieldResult`. Output files are written by the caller (:mod:`kindyn.output`).
+
+Array layout of the result: ``alpha`` is ``3 x 3`` (row = EMF component i, column = uniform test
+field j); ``alpha_K``/``eta_K`` are ``(nK, 3, 2)`` (row i = x, y, z; column = the two components
+perpendicular to the averaging axis, in x, y, z order). Errors have the same shapes: standard
+errors from block averages (time-dependent flows), the last change (time-stepped steady flows),
+or ``nan`` for direct steady solves (exact up to the solver residual, which is reported).
+"""
+
+from __future__ import annotations
+
+import math
+from dataclasses import dataclass, field
+
+import numpy as np
+
+from kindyn.errors import CaseError, NumericalError
+from kindyn.testfield import steady
+from kindyn.testfield.averaging import ProblemGroup, integrate, time_settings
+from kindyn.testfield.extraction import (alpha_from_uniform, beta_from_eta, coefficients_from_profiles,
+                                         horizontal_parts, planar_tests)
+from kindyn.testfield.fields import uniform_test_fields
+from kindyn.testfield.kernels import fit_lorentzian
+from kindyn.testfield.problems import TestProblemOperator
+from kindyn.testfield.settings import plan_from_case
+from kindyn.transforms import TransformSettings, make_engine
+
+SOCA_CAUTION = ("SOCA (second-order correlation approximation) is valid only at small Rm or short correlation "
+                "time; compare alpha_soca with alpha before using it")
+RESET_CAUTION = ("above dynamo onset the test solutions grow, and the coefficients depend on the reset "
+                 "interval (testfield.reset_interval)")
+SIGNS = ("Ebar_i = alpha_ij Bbar_j + beta_ijk d_k Bbar_j; planar averages: Ebar_i = alpha_ij Bbar_j - "
+         "eta_ij (curl Bbar)_j, beta_ijs = -eta_il eps_lsj; row i = EMF component, column j = mean-field "
+         "component")
+ONSET_MARGIN = 1e-8
+
+
+@dataclass
+class TestFieldResult:
+    """Everything ``kindyn testfield`` reports (see module docstring for shapes)."""
+
+    axis: int
+    modes: tuple
+    K: np.ndarray
+    method: str
+    Rm: float
+    eta: float
+    speed: float
+    k_f: float
+    converged: bool
+    stop_reason: str
+    tensors: dict = field(default_factory=dict)
+    errors: dict = field(default_factory=dict)
+    notes: list = field(default_factory=list)
+    onset_growth_rates: dict = field(default_factory=dict)
+    solver: dict = field(default_factory=dict)
+    fits: dict = field(default_factory=dict)
+    closure: dict | None = None
+    growing: bool = False
+    time_outcome: object = None
+
+    __test__ = False
+
+    def horizontal(self, soca: bool = False) -> tuple[np.ndarray, np.ndarray]:
+        """``alpha(K)`` and ``eta_t(K)``: in-plane means of the diagonals (arrays of length nK)."""
+        sfx = "_soca" if soca else ""
+        pairs = [horizontal_parts(a, e, self.axis) for a, e in zip(self.tensors["alpha_K" + sfx],
+                                                                     self.tensors["eta_K" + sfx])]
+        return np.array([p[0] for p in pairs]), np.array([p[1] for p in pairs])
+
+    def horizontal_errors(self, soca: bool = False) -> tuple[np.ndarray, np.ndarray]:
+        """Errors of :meth:`horizontal` (half the sum of the two diagonal errors: an upper bound)."""
+        sfx = "_soca" if soca else ""
+        pairs = [horizontal_parts(a, e, self.axis) for a, e in zip(self.errors["alpha_K" + sfx],
+                                                                     self.errors["eta_K" + sfx])]
+        return np.array([p[0] for p in pairs]), np.array([p[1] for p in pairs])
+
+    def beta(self, soca: bool = False) -> np.ndarray:
+        sfx = "_soca" if soca else ""
+        return np.stack([beta_from_eta(e, self.axis) for e in self.tensors["eta_K" + sfx]])
+
+
+def _transforms(case) -> TransformSettings:
+    n = case.numerics
+    return TransformSettings(n.fft, n.threads, n.planning, "double")
+
+
+def _planar_coefficients(groups_of_fields, s):
+    def coefficients(full, soca):
+        out = {}
+        for name, emf in (("", full), ("_soca", soca)):
+            alphas, etas = [], []
+            for g, fields in enumerate(groups_of_fields):
+                a, e = coefficients_from_profiles(emf[4 * g:4 * g + 4], fields, s)
+                alphas.append(a)
+                etas.append(e)
+            out["alpha_K" + name], out["eta_K" + name] = np.stack(alphas), np.stack(etas)
+        return out
+    return coefficients
+
+
+def _uniform_coefficients(full, soca):
+    return {"alpha": alpha_from_uniform(full), "alpha_soca": alpha_from_uniform(soca)}
+
+
+def _direct(case, plan, result: TestFieldResult, progress) -> None:
+    box, flow, eta = case.box, case.flow, case.eta
+    engine = make_engine(box, _transforms(case), 3)
+    jobs = []
+    if plan.uniform:
+        jobs.append(("uniform", None, [uniform_test_fields()]))
+    jobs.append(("planar", plan.axis, planar_tests(plan.axis, plan.modes, plan.wavenumbers)))
+    if plan.onset_check:
+        for name, axis, field_sets in jobs:
+            sources = []
+            for f in (f for fields in field_sets for f in fields):
+                op = TestProblemOperator(box, flow, engine, eta, [f], axis)
+                sources.append(op.source(0.0, np.empty(op.shape, dtype=complex)))
+            rate = steady.leading_growth_rate(op, sources)
+            result.onset_growth_rates[name] = rate
+            if math.isfinite(rate) and rate > -ONSET_MARGIN * flow.speed * flow.wavenumber:
+                raise CaseError(case.path, "testfield.method", case.testfield.method,
+                                f"\"time\" with a testfield.reset_interval: the {name} test problems have a growing "
+                                f"homogeneous mode (growth rate {rate:.4g} >= 0, above dynamo onset), so the steady "
+                                "solution is not their long-time limit")
+            if not math.isfinite(rate):
+                result.notes.append(f"onset check for the {name} test problems did not converge (ARPACK)")
+    residuals = []
+    for name, axis, field_sets in jobs:
+        emf_full, emf_soca = [], []
+        for fields in field_sets:
+            for f in fields:
+                op = TestProblemOperator(box, flow, engine, eta, [f], axis)
+                b_soca = steady.soca_solution(op)
+                b_full, info = steady.full_solution(op, plan.solver_tolerance)
+                residuals.append(info["residual"])
+                emf_full.append(op.emf(0.0, b_full)[0])
+                emf_soca.append(op.emf(0.0, b_soca)[0])
+                if progress:
+                    progress(f"{f.label}: GMRES residual {info['residual']:.2g}, {info['iterations']} applications")
+        full, soca = np.stack(emf_full), np.stack(emf_soca)
+        if name == "uniform":
+            values = _uniform_coefficients(full, soca)
+        else:
+            values = _planar_coefficients(field_sets, box.axis(plan.axis))(full, soca)
+        result.tensors.update(values)
+        result.errors.update({k: np.full_like(v, np.nan) for k, v in values.items()})
+    result.solver = {"kind": "direct steady solve: SOCA by spectral division, full by GMRES",
+                     "max_relative_residual": max(residuals) if residuals else 0.0}
+    result.converged, result.stop_reason = True, "direct steady solve"
+
+
+def _time(case, plan, result: TestFieldResult, progress) -> None:
+    box, flow, eta = case.box, case.flow, case.eta
+    settings = time_settings(flow, box, eta, plan, case.run.cfl, case.run.time_step)
+    groups = []
+    if plan.uniform:
+        groups.append(ProblemGroup(box, flow, eta, uniform_test_fields(), None, _transforms(case), case.run.scheme,
+                                   _uniform_coefficients))
+    field_sets = planar_tests(plan.axis, plan.modes, plan.wavenumbers)
+    flat = [f for fields in field_sets for f in fields]
+    groups.append(ProblemGroup(box, flow, eta, flat, plan.axis, _transforms(case), case.run.scheme,
+                               _planar_coefficients(field_sets, box.axis(plan.axis))))
+    scales = {"alpha": flow.speed, "eta": flow.speed / flow.wavenumber}
+    report = (lambda t, worst: progress(f"t = {t:10.4g}   worst error / tolerance = {worst:.3g}")) if progress else None
+    outcome = integrate(groups, settings, scales, plan.tolerance, report)
+    result.tensors.update(outcome.estimates)
+    result.errors.update(outcome.errors)
+    result.converged, result.stop_reason = outcome.converged, outcome.stop_reason
+    result.growing, result.time_outcome = outcome.growing, outcome
+    result.solver = {"kind": f"time stepping ({case.run.scheme}, integrating factor), {settings.mode} over blocks",
+                     "dt": settings.dt, "block_length": settings.block_length,
+                     "reset_interval": settings.reset_interval, "settle_time": settings.settle_time,
+                     "time": outcome.time, "steps": outcome.steps, "wall_seconds": outcome.wall_seconds,
+                     "test_solution_growth_rate": outcome.growth_rate}
+    if outcome.growing:
+        result.notes.append(RESET_CAUTION + " (growing test solutions were detected)")
+    elif settings.reset_interval is not None:
+        result.notes.append("results can depend on the reset interval when the flow is above dynamo onset")
+
+
+def calibrate(case, progress=None, direct_run=None) -> TestFieldResult:
+    """Run the test-field method for ``case`` (see module docstring).
+
+    ``progress(text)`` receives progress lines; ``direct_run(case) -> (rate, error, b_hat)`` is the
+    growth-rate run of the closure check (the command passes one built on :func:`kindyn.run.run_growth`;
+    this module does not import the run layer). Without it the closure check is skipped with a note.
+    """
+    plan = plan_from_case(case)
+    flow = case.flow
+    result = TestFieldResult(plan.axis, plan.modes, np.array(plan.wavenumbers), plan.method, case.Rm, case.eta,
+                             flow.speed, flow.wavenumber, False, "")
+    result.notes.append(SOCA_CAUTION)
+    if plan.method == "direct":
+        _direct(case, plan, result, progress)
+    else:
+        _time(case, plan, result, progress)
+    for soca in (False, True):
+        a, e = result.horizontal(soca)
+        sfx = "_soca" if soca else ""
+        result.fits["alpha" + sfx] = fit_lorentzian(result.K, a, flow.wavenumber).as_dict()
+        result.fits["eta_t" + sfx] = fit_lorentzian(result.K, e, flow.wavenumber).as_dict()
+    if plan.closure and direct_run is None:
+        result.notes.append("closure check skipped: no direct run was supplied")
+    elif plan.closure:
+        result.closure = _closure(case, plan, result, direct_run)
+    return result
+
+
+def _closure(case, plan, result, direct_run) -> dict:
+    from kindyn.testfield.closure import box_scale_mean_share, closure_report
+
+    K1 = 2 * math.pi / case.box.lengths[plan.axis]
+    if 1 not in plan.modes:
+        raise CaseError(case.path, "testfield.modes", list(plan.modes),
+                        "a list containing the box-scale mode 1 when testfield.closure = true")
+    i = plan.modes.index(1)
+    a, e = result.horizontal()
+    try:
+        rate, error, b_hat = direct_run(case)
+    except NumericalError as exc:
+        rate, error, b_hat = math.nan, math.nan, None
+        result.notes.append(f"closure check: the direct run failed ({exc})")
+    share = box_scale_mean_share(b_hat, case.box, plan.axis) if b_hat is not None else None
+    return closure_report(float(a[i]), float(e[i]), result.tensors["alpha_K"][i], result.tensors["eta_K"][i],
+                          case.eta, K1, plan.axis, case.flow.wavenumber, rate, error, share)
