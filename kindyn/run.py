@@ -67,6 +67,7 @@ class RunOutcome:
     stop_reason: str
     wall_seconds: float
     resumed: bool
+    u_rms: float  # rms speed of the flow at t = 0 on the grid
 
 
 @dataclass
@@ -171,7 +172,8 @@ def run_growth(case, progress=None, checkpoint=None) -> RunOutcome:
     field = physical_from_spectral(solver.engine, b_hat)
     return RunOutcome(estimate, record, b_hat, field, shell_spectrum(b_hat, box), ratio,
                       ratio > settings.resolution_threshold, step, t, timing, stop_reason,
-                      wallclock.time() - started, bool(state))
+                      wallclock.time() - started, bool(state),
+                      float(np.sqrt(np.mean(np.sum(solver.operator.velocity(0.0) ** 2, axis=0)))))
 
 
 def _estimate(record: Record, timing: Timing, tolerance: float, flow=None) -> GrowthEstimate:

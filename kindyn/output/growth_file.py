@@ -31,6 +31,8 @@ def result_summary(case, outcome) -> dict:
         "Rm": case.Rm,
         "eta": case.eta,
         "U": flow.speed,
+        "u_rms": outcome.u_rms,
+        "Rm_rms": outcome.u_rms / (case.eta * flow.wavenumber),
         "k_f": flow.wavenumber,
         "time": outcome.time,
         "steps": outcome.steps,
