@@ -1,0 +1,141 @@
+"""``kindyn modes CASE.toml``: leading eigenvalues and eigenfields by a Krylov eigen-solve.
+
+Prints the leading eigenvalues ``p = gamma + i omega`` with their residual norms (a table on stdout;
+progress and cautions on stderr); writes the
+eigenfields (physical space, real and imaginary parts) to ``OUT/NAME.modes.nc`` and a figure of the
+leading mode's ``|B|`` on slices to ``OUT/NAME.modes.png``. ``--json`` prints one object with at
+least ``eigenvalues`` (list of ``[gamma, omega]``) and ``residuals``.
+"""
+
+from __future__ import annotations
+
+import math
+
+import numpy as np
+
+from kindyn.commands.common import add_case_arguments, case_from_args, output_folder, print_json, say
+from kindyn.eigen.solve import solve_modes
+from kindyn.errors import CaseError
+
+HELP = "leading eigenvalues and eigenmodes (Krylov solve; Floquet for periodic flows; planar reduction)"
+
+RESOLUTION_CAUTION = ("the leading eigenfield's spectrum at the dealiasing cut-off is {ratio:.2g} of its peak "
+                      "(threshold {threshold:g}): the grid may be too coarse, and under-resolved solves can "
+                      "show spurious growth; repeat on a finer grid")
+TIME_STEP_CAUTION = ("eigenvalues carry the time scheme's O(dt^4) error (dt = {dt:.3g}); repeat with a smaller "
+                     "modes.cfl to check the digits you need")
+
+
+def add_arguments(parser) -> None:
+    add_case_arguments(parser)
+    parser.add_argument("--count", type=int, default=None, metavar="N",
+                        help="number of leading eigenvalues (overrides modes.count)")
+    parser.add_argument("--quiet", action="store_true", help="no progress lines on stderr")
+
+
+def summary_of(case, outcome) -> dict:
+    lead = outcome.leading
+    return {
+        "eigenvalues": [[m.growth_rate, m.frequency] for m in outcome.modes],
+        "residuals": [m.residual for m in outcome.modes],
+        "vertical_wavenumbers": [m.kz for m in outcome.modes] if outcome.method == "planar" else None,
+        "growth_rate": lead.growth_rate,
+        "frequency": lead.frequency,
+        "method": outcome.method,
+        "periodic": outcome.periodic,
+        "frequency_modulus": outcome.frequency_modulus,
+        "z_independent": outcome.z_independent,
+        "time_step": outcome.time_step,
+        "propagation_time": outcome.propagation_time,
+        "propagations": outcome.applications,
+        "cutoff_ratio": outcome.cutoff_ratio,
+        "resolution_warning": bool(outcome.resolution_warning),
+        "mean_field_kept": False,
+        "Rm": case.Rm,
+        "eta": case.eta,
+        "U": case.flow.speed,
+        "k_f": case.flow.wavenumber,
+        "wall_seconds": outcome.wall_seconds,
+    }
+
+
+def eigenvalue_table(outcome) -> list[str]:
+    planar = outcome.method == "planar"
+    head = f"  {'#':>2}  {'gamma':>14}  {'omega':>14}  {'residual':>9}" + ("  kz" if planar else "")
+    lines = [head]
+    for j, m in enumerate(outcome.modes):
+        line = f"  {j:>2}  {m.growth_rate:+14.8f}  {m.frequency:+14.8f}  {m.residual:9.2e}"
+        if planar:
+            line += f"  {m.kz:.6g}"
+        lines.append(line)
+    if outcome.periodic:
+        lines.append(f"  (Floquet exponents: omega is defined modulo 2 pi/T = {outcome.frequency_modulus:.6g})")
+    if planar:
+        lines.append("  (planar reduction: each eigenvalue at kz has its complex conjugate at -kz)")
+    else:
+        lines.append("  (an exactly degenerate eigenvalue, e.g. from a symmetry of the flow, may be listed once)")
+    return lines
+
+
+def leading_slices(case, outcome) -> list:
+    """Panels of ``|B|`` of the leading eigenfield (envelope ``sqrt(|B_real|^2 + |B_imag|^2)``)."""
+    real, imag = outcome.fields[0]
+    magnitude = np.sqrt(np.sum(real**2 + imag**2, axis=0))
+    Lx, Ly, Lz = case.box.lengths
+    if outcome.method == "box":
+        return [("|B| on z = 0", magnitude[:, :, 0], (Lx, Ly), ("x", "y")),
+                ("|B| on y = 0", magnitude[:, 0, :], (Lx, Lz), ("x", "z")),
+                ("|B| on x = 0", magnitude[0, :, :], (Ly, Lz), ("y", "z"))]
+    kz = outcome.leading.kz
+    # B = Re[b exp(i kz z)] on the plane y = 0 over one vertical wavelength (or 2 pi when kz = 0)
+    height = 2 * math.pi / kz if kz > 0 else Lz
+    z = np.linspace(0, height, 48, endpoint=False)
+    phase = np.exp(1j * kz * z)
+    b0 = real[:, :, 0] + 1j * imag[:, :, 0]
+    section = np.sqrt(np.sum(np.real(b0[:, :, None] * phase[None, None, :]) ** 2, axis=0))
+    return [("|b| (envelope over z)", magnitude, (Lx, Ly), ("x", "y")),
+            ("|B| on y = 0", section, (Lx, height), ("x", "z"))]
+
+
+def execute(args) -> int:
+    case = case_from_args(args)
+    if args.count is not None and args.count < 1:
+        raise CaseError("", "--count", args.count, "a whole number >= 1")
+    out = output_folder(args)
+    nc_path, png_path = out / f"{case.name}.modes.nc", out / f"{case.name}.modes.png"
+    if not args.quiet:
+        say(f"kindyn modes {case.path}: {case.flow_type} flow, grid {list(case.box.grid)}, "
+            f"Rm = {case.Rm:.6g} (eta = {case.eta:.6g})")
+    progress = None if args.quiet else (lambda text: say("  " + text))
+    outcome = solve_modes(case, count=args.count, progress=progress)
+    summary = summary_of(case, outcome)
+    cautions = [TIME_STEP_CAUTION.format(dt=outcome.time_step)]
+    if outcome.resolution_warning:
+        caution = RESOLUTION_CAUTION.format(ratio=outcome.cutoff_ratio, threshold=case.run.resolution_threshold)
+        cautions.insert(0, caution)
+        say(f"kindyn modes: warning: {caution}")
+    from kindyn.output.modes_file import write_modes_file
+
+    write_modes_file(nc_path, case, outcome, summary, cautions)
+    figure = None
+    if case.output.figure and outcome.fields:
+        from kindyn.output.figures_modes import modes_figure
+
+        lead = outcome.leading
+        where = f", kz = {lead.kz:.4g}" if outcome.method == "planar" else ""
+        modes_figure(png_path, leading_slices(case, outcome),
+                     f"{case.name}: leading mode p = {lead.growth_rate:+.6g} {lead.frequency:+.6g} i{where}",
+                     warning="possibly under-resolved" if outcome.resolution_warning else "")
+        figure = str(png_path)
+    summary["output"] = str(nc_path)
+    summary["figure"] = figure
+    summary["cautions"] = cautions
+    if args.json:
+        print_json(summary)
+    else:
+        print("\n".join(eigenvalue_table(outcome)), flush=True)
+    if not args.quiet:
+        say(f"{outcome.applications} propagations over T = {outcome.propagation_time:.4g} "
+            f"(dt = {outcome.time_step:.4g}), {outcome.wall_seconds:.1f} s; wrote {nc_path}"
+            + (f" and {png_path}" if figure else ""))
+    return 0

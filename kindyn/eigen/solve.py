@@ -1,0 +1,289 @@
+"""From a validated case to its leading eigenmodes (``kindyn modes`` and eigen-based sweeps).
+
+Chooses the problem from the flow and the ``[modes]`` section (:mod:`kindyn.eigen.settings`):
+
+* **box** (any steady or time-periodic flow): real vectors on the 3-D half grid;
+* **planar** (``u`` independent of z, declared and checked numerically): ``B = b(x, y) exp(i k_z z)``
+  on a 2-D grid, one solve per ``k_z``; eigenvalues at ``-k_z`` are the complex conjugates and are not
+  listed. ``method = "auto"`` takes planar whenever it applies.
+
+Steady flows: ARPACK on ``exp(L T)`` with a short ``T`` (:mod:`kindyn.eigen.krylov`);
+time-periodic flows: Floquet multipliers of the period map (:mod:`kindyn.eigen.floquet`), frequencies
+modulo ``2 pi/T``. Other flows (random renovating, aperiodic) have no eigenmodes and are refused.
+
+Cautions carried into every result: the eigenvalues inherit the time scheme's ``O(dt^4)`` error
+(lower ``modes.cfl`` to check), and an under-resolved grid can show spurious growth
+(``cutoff_ratio`` of the leading eigenfield against ``run.resolution_threshold``).
+"""
+
+from __future__ import annotations
+
+import math
+import time as wallclock
+from dataclasses import dataclass, field
+
+import numpy as np
+
+from kindyn.eigen.floquet import floquet_modes, steps_per_period
+from kindyn.eigen.krylov import EigenSolution, leading_eigenpairs
+from kindyn.eigen.planar import PlanarGrid, is_z_independent, planar_cutoff_ratio, planar_time_step
+from kindyn.eigen.propagator import box_propagator, planar_propagator
+from kindyn.errors import CaseError
+
+DEFAULT_PROPAGATION_TURNOVERS = 1.0  # T = 1/(U k_f): principal branch for |omega| < pi U k_f (see krylov)
+
+
+@dataclass(frozen=True)
+class Mode:
+    """One eigenvalue ``p = gamma + i omega`` with its residual and (planar) vertical wavenumber."""
+
+    eigenvalue: complex
+    residual: float
+    multiplier: complex
+    branch_shift: int
+    kz: float | None  # None for the box method
+
+    @property
+    def growth_rate(self) -> float:
+        return float(self.eigenvalue.real)
+
+    @property
+    def frequency(self) -> float:
+        return float(self.eigenvalue.imag)
+
+
+@dataclass(frozen=True)
+class ModesOutcome:
+    """Leading modes of a case; ``fields[i] = (real, imag)`` physical eigenfields of ``modes[i]``.
+
+    Box fields have shape ``(3, nx, ny, nz)``; planar fields ``(3, nx, ny)`` hold the amplitude ``b``
+    of ``B = Re[b exp(i k_z z + p t)]`` on the plane grid ``planar_grid``.
+    """
+
+    method: str
+    periodic: bool
+    modes: list
+    fields: list
+    time_step: float
+    propagation_time: float
+    frequency_modulus: float | None
+    applications: int
+    wall_seconds: float
+    cutoff_ratio: float
+    resolution_warning: bool
+    z_independent: bool
+    planar_grid: tuple | None = None
+    solutions: dict = field(default_factory=dict)  # kz (or None) -> EigenSolution
+
+    @property
+    def leading(self) -> Mode:
+        return self.modes[0]
+
+
+def flow_kind(case) -> str:
+    """``"steady"`` or ``"periodic"``; a :class:`CaseError` for flows without eigenmodes."""
+    flow = case.flow
+    if getattr(flow, "steady", False):
+        return "steady"
+    period = getattr(flow, "period", None)
+    if period and math.isfinite(period) and period > 0:
+        return "periodic"
+    raise CaseError(case.path, "flow.type", case.flow_type,
+                    "a steady or time-periodic flow for eigenmodes (use kindyn run for other flows)")
+
+
+def choose_method(case, z_independent: bool) -> str:
+    method = case.modes.method
+    if method == "planar" and not z_independent:
+        raise CaseError(case.path, "modes.method", method,
+                        "\"box\" or \"auto\": the planar reduction needs a flow that does not depend on z")
+    if method == "auto":
+        return "planar" if z_independent else "box"
+    return method
+
+
+def default_wavenumbers(box) -> tuple[float, ...]:
+    """The ``k_z = 2 pi m/Lz >= 0`` that the 3-D box keeps after dealiasing."""
+    return tuple(2 * math.pi * m / box.lengths[2] for m in range((box.grid[2] - 1) // 3 + 1))
+
+
+def _steady_steps(settings, dt_max: float, turnover: float) -> tuple[float, int]:
+    """``(dt, steps)`` with an even number of steps spanning the propagation time."""
+    T = settings.propagation_time or DEFAULT_PROPAGATION_TURNOVERS * turnover
+    if settings.time_step:
+        steps = max(2, 2 * round(T / (2 * settings.time_step)))
+        return settings.time_step, steps
+    steps = max(2, 2 * math.ceil(T / (2 * dt_max) - 1e-12))
+    return T / steps, steps
+
+
+def _arpack(settings) -> dict:
+    return {"tolerance": settings.tolerance, "krylov_dimension": settings.krylov_dimension,
+            "max_restarts": settings.max_restarts, "seed": settings.seed, "solver": settings.solver}
+
+
+def solve_modes(case, count: int | None = None, progress=None, with_fields: bool = True) -> ModesOutcome:
+    """Leading eigenmodes of ``case`` (see module doc); ``progress(text)`` is told of each solve."""
+    settings = case.modes
+    count = count or settings.count
+    kind = flow_kind(case)
+    z_independent = is_z_independent(case.flow, case.box)
+    method = choose_method(case, z_independent)
+    started = wallclock.time()
+    if method == "box":
+        outcome = _solve_box(case, count, kind, progress, with_fields)
+    else:
+        outcome = _solve_planar(case, count, kind, progress, with_fields)
+    threshold = case.run.resolution_threshold
+    return ModesOutcome(method, kind == "periodic", outcome["modes"], outcome["fields"], outcome["dt"],
+                        outcome["T"], 2 * math.pi / outcome["T"] if kind == "periodic" else None,
+                        outcome["applications"], wallclock.time() - started, outcome["cutoff"],
+                        outcome["cutoff"] > threshold, z_independent, outcome.get("planar_grid"),
+                        outcome["solutions"])
+
+
+def _modes_of(solution: EigenSolution, kz) -> list:
+    return [Mode(complex(p), float(r), complex(mu), int(s), kz) for p, r, mu, s in
+            zip(solution.eigenvalues, solution.residuals, solution.multipliers, solution.branch_shifts)]
+
+
+def _solve_box(case, count, kind, progress, with_fields) -> dict:
+    from kindyn.diagnostics.spectra import cutoff_ratio
+    from kindyn.run import transform_settings
+    from kindyn.timestep import cfl_time_step
+    from kindyn.transforms import physical_from_spectral
+
+    box, flow, settings = case.box, case.flow, case.modes
+    dt_max = settings.time_step or cfl_time_step(flow, box, settings.cfl)
+    if kind == "periodic":
+        steps = steps_per_period(flow.period, dt_max)
+        dt = flow.period / steps
+    else:
+        dt, steps = _steady_steps(settings, dt_max, 1.0 / (flow.speed * flow.wavenumber))
+    propagator = box_propagator(box, flow, case.eta, dt, steps, transform_settings(case), case.run.scheme)
+    if progress:
+        progress(f"box {list(box.grid)}: {propagator.size} unknowns, T = {propagator.time:.4g}, "
+                 f"{steps} steps of {dt:.4g}")
+    solve = floquet_modes if kind == "periodic" else leading_eigenpairs
+    solution = solve(propagator, count, **_arpack(settings))
+    modes = _modes_of(solution, None)
+    nfields = min(len(modes), count if settings.fields is None else settings.fields) if with_fields else 0
+    fields, cutoff = [], 0.0
+    engine = propagator.solver.engine
+    for j in range(len(modes)):
+        if j >= max(nfields, 1):
+            break
+        re_hat, im_hat = propagator.basis.complex_field_hat(solution.vectors[:, j])
+        if j == 0:
+            cutoff = cutoff_ratio(np.concatenate([re_hat, im_hat]), box)
+        if j < nfields:
+            fields.append((physical_from_spectral(engine, re_hat), physical_from_spectral(engine, im_hat)))
+    return {"modes": modes, "fields": fields, "dt": dt, "T": propagator.time, "applications": solution.applications,
+            "cutoff": cutoff, "solutions": {None: solution}}
+
+
+def _solve_planar(case, count, kind, progress, with_fields) -> dict:
+    from kindyn.run import transform_settings
+
+    box, flow, settings = case.box, case.flow, case.modes
+    plane = settings.planar_grid or box.grid[:2]
+    lengths = box.lengths[:2]
+    _check_plane(case, plane)
+    wavenumbers = settings.kz or default_wavenumbers(box)
+    widest = PlanarGrid(lengths, plane, max(wavenumbers))
+    dt_max = settings.time_step or planar_time_step(flow, widest, settings.cfl)
+    if kind == "periodic":
+        steps = steps_per_period(flow.period, dt_max)
+        dt = flow.period / steps
+    else:
+        dt, steps = _steady_steps(settings, dt_max, 1.0 / (flow.speed * flow.wavenumber))
+    solutions, candidates, applications = {}, [], 0
+    for kz in wavenumbers:
+        grid = PlanarGrid(lengths, plane, kz)
+        propagator = planar_propagator(grid, flow, case.eta, dt, steps, case.run.scheme,
+                                       transforms=transform_settings(case))
+        if progress:
+            progress(f"planar {list(plane)}, kz = {kz:.6g}: {propagator.size} unknowns, T = {propagator.time:.4g}")
+        solve = floquet_modes if kind == "periodic" else leading_eigenpairs
+        solution = solve(propagator, count, **_arpack(settings))
+        solutions[kz] = solution
+        applications += solution.applications
+        for j, mode in enumerate(_modes_of(solution, kz)):
+            candidates.append((mode, propagator, solution.vectors[:, j]))
+    candidates.sort(key=lambda c: (-round(c[0].growth_rate, 12), -c[0].frequency))
+    candidates = candidates[:count]
+    nfields = min(len(candidates), count if settings.fields is None else settings.fields) if with_fields else 0
+    fields, cutoff = [], 0.0
+    for j, (mode, propagator, vector) in enumerate(candidates):
+        if j >= max(nfields, 1):
+            break
+        b_hat = propagator.field_hat(vector)
+        if j == 0:
+            cutoff = planar_cutoff_ratio(b_hat, propagator.solver.grid)
+        if j < nfields:
+            engine = propagator.solver.engine
+            engine.spectral[...] = b_hat
+            engine.backward()
+            b = engine.physical.copy()
+            fields.append((b.real.copy(), b.imag.copy()))
+    return {"modes": [c[0] for c in candidates], "fields": fields, "dt": dt, "T": steps * dt,
+            "applications": applications, "cutoff": cutoff, "solutions": solutions, "planar_grid": tuple(plane)}
+
+
+def _check_plane(case, plane) -> None:
+    """The planar grid must keep the flow's modes after dealiasing (as the domain grid must)."""
+    from kindyn.box import Box
+    from kindyn.errors import ParameterError
+
+    try:
+        case.flow.check_box(Box(case.box.lengths, (plane[0], plane[1], case.box.grid[2])))
+    except ParameterError as exc:
+        raise CaseError(case.path, "modes.planar_grid", list(plane), exc.expected) from None
+
+
+def sweep_point(case, count: int | None = 1) -> dict:
+    """Eigen-solve of one sweep point: the leading mode's numbers as a flat dict.
+
+    Only the leading mode is needed for a growth-rate sweep, and asking ARPACK for one eigenvalue (a
+    conjugate pair stays whole) is several times cheaper than for four; ``count=None`` uses
+    ``modes.count`` of the case instead.
+
+    Keys: ``growth_rate``, ``frequency`` (None-free floats), ``residual``, ``converged`` (ARPACK
+    converged and residual below ``100 * modes.tolerance``), ``kz`` (planar; None for box),
+    ``method``, ``periodic``, ``frequency_modulus`` (``2 pi/T`` for Floquet modes, else None),
+    ``eigenvalues`` (list of ``[gamma, omega]``), ``residuals``, ``Rm``, ``eta``, ``U``, ``k_f``,
+    ``cutoff_ratio``, ``resolution_warning``, ``wall_seconds``, ``propagations``.
+    """
+    return point_summary(case, solve_modes(case, count=count, with_fields=False))
+
+
+def point_summary(case, outcome: ModesOutcome) -> dict:
+    """The leading mode's numbers as a flat dict (see :func:`sweep_point`).
+
+    ``growth_rate_error`` is the first-order bound ``residual / T`` on the eigenvalue of the
+    propagator mapped back to ``p`` (``|d mu| <= residual |mu|`` and ``dp = d mu/(mu T)``).
+    """
+    lead = outcome.leading
+    flow = case.flow
+    return {
+        "growth_rate": lead.growth_rate,
+        "frequency": lead.frequency,
+        "residual": lead.residual,
+        "growth_rate_error": float(lead.residual / outcome.propagation_time),
+        "stop_reason": "converged" if lead.residual <= 100 * case.modes.tolerance else "residual above tolerance",
+        "converged": bool(lead.residual <= 100 * case.modes.tolerance),
+        "kz": lead.kz,
+        "method": outcome.method,
+        "periodic": outcome.periodic,
+        "frequency_modulus": outcome.frequency_modulus,
+        "eigenvalues": [[m.growth_rate, m.frequency] for m in outcome.modes],
+        "residuals": [m.residual for m in outcome.modes],
+        "Rm": case.Rm,
+        "eta": case.eta,
+        "U": flow.speed,
+        "k_f": flow.wavenumber,
+        "cutoff_ratio": outcome.cutoff_ratio,
+        "resolution_warning": bool(outcome.resolution_warning),
+        "wall_seconds": outcome.wall_seconds,
+        "propagations": outcome.applications,
+    }

@@ -1,0 +1,93 @@
+"""Complex two-dimensional transform engines for the planar (z-independent) reduction.
+
+A field ``B(x, y, z) = b(x, y) exp(i k_z z)`` is held by its complex planar amplitude ``b``. An
+engine owns two complex buffers and moves data between them, like the 3-D engines of
+:mod:`kindyn.transforms`:
+
+* ``engine.physical`` planar amplitude on the grid, shape ``(ncomp, nx, ny)``, complex128
+* ``engine.spectral`` its Fourier coefficients, shape ``(ncomp, nx, ny)``, complex128 (FFT order
+  ``m = 0, 1, .., -1`` on both axes; no Hermitian symmetry, since ``b`` is complex)
+
+``forward()`` computes ``spectral <- FFT2(physical) / (nx ny)`` so that
+``b(x, y) = sum b_hat(m) exp(i (k_x x + k_y y))``; ``forward(normalise=False)`` leaves out the
+``1/(nx ny)`` (for callers that fold it into a spectral factor); ``backward()`` is the plain inverse
+sum and leaves ``spectral`` intact (out-of-place complex transforms).
+
+Engines: ``"fftw"`` (pyfftw plans, made before the buffers are filled) and ``"scipy"``
+(``scipy.fft``); :func:`make_planar_engine` falls back to scipy when pyfftw is missing.
+"""
+
+from __future__ import annotations
+
+import numpy as np
+import scipy.fft
+
+_FLAGS = {"estimate": "FFTW_ESTIMATE", "measure": "FFTW_MEASURE", "patient": "FFTW_PATIENT"}
+
+
+class ScipyPlanarEngine:
+    """Batched complex 2-D transforms over axes ``(1, 2)`` with ``scipy.fft``."""
+
+    name = "scipy"
+
+    def __init__(self, grid: tuple[int, int], ncomp: int = 3, threads: int = 1):
+        nx, ny = _checked(grid)
+        self.grid, self.ncomp, self.workers = (nx, ny), ncomp, int(threads)
+        self.physical = np.zeros((ncomp, nx, ny), dtype=np.complex128)
+        self.spectral = np.zeros((ncomp, nx, ny), dtype=np.complex128)
+
+    def forward(self, normalise: bool = True) -> None:
+        self.spectral[...] = scipy.fft.fft2(self.physical, axes=(1, 2), norm="forward" if normalise else "backward",
+                                            workers=self.workers)
+
+    def backward(self) -> None:
+        self.physical[...] = scipy.fft.ifft2(self.spectral, axes=(1, 2), norm="forward", workers=self.workers)
+
+
+class FFTWPlanarEngine:
+    """Batched complex 2-D transforms over axes ``(1, 2)`` with pyfftw plans built once."""
+
+    name = "fftw"
+
+    def __init__(self, grid: tuple[int, int], ncomp: int = 3, threads: int = 1, planning: str = "measure"):
+        import pyfftw
+
+        nx, ny = _checked(grid)
+        self.grid, self.ncomp = (nx, ny), ncomp
+        self.physical = pyfftw.empty_aligned((ncomp, nx, ny), dtype=np.complex128)
+        self.spectral = pyfftw.empty_aligned((ncomp, nx, ny), dtype=np.complex128)
+        flags = (_FLAGS[planning],)
+        self._forward = pyfftw.FFTW(self.physical, self.spectral, axes=(1, 2), direction="FFTW_FORWARD",
+                                    flags=flags, threads=threads)
+        self._backward = pyfftw.FFTW(self.spectral, self.physical, axes=(1, 2), direction="FFTW_BACKWARD",
+                                     flags=flags, threads=threads)
+        self._scale = 1.0 / (nx * ny)
+        self.physical.fill(0)
+        self.spectral.fill(0)
+
+    def forward(self, normalise: bool = True) -> None:
+        self._forward.execute()
+        if normalise:
+            np.multiply(self.spectral, self._scale, out=self.spectral)
+
+    def backward(self) -> None:
+        self._backward.execute()
+
+
+def make_planar_engine(grid, ncomp: int = 3, engine: str = "fftw", threads: int = 1, planning: str = "measure"):
+    """The planar engine named ``engine`` (``"fftw"`` falls back to ``"scipy"`` without pyfftw)."""
+    if engine == "fftw":
+        try:
+            return FFTWPlanarEngine(grid, ncomp, threads, planning)
+        except ImportError:
+            pass
+    elif engine != "scipy":
+        raise ValueError(f"unknown planar transform engine {engine!r}; expected 'fftw' or 'scipy'")
+    return ScipyPlanarEngine(grid, ncomp, threads)
+
+
+def _checked(grid) -> tuple[int, int]:
+    nx, ny = (int(n) for n in grid)
+    if nx < 1 or ny < 1:
+        raise ValueError(f"planar grid sizes must be positive, got {grid}")
+    return nx, ny

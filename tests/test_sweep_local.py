@@ -1,0 +1,132 @@
+"""``kindyn sweep`` on local worker processes: same numbers as separate runs, reuse, failing points.
+
+1. Issue check: a 4-point Rm sweep of the 1:1:1 ABC flow on an 8^3 grid with 2 local workers gives
+   the same growth rate, uncertainty, frequency and number of steps as 4 separate ``kindyn run
+   --set magnetic.Rm=...`` calls of the same case file (both go through kindyn.run.run_growth with
+   identical inputs, so equality to round-off, rtol = 1e-12). The summary netCDF holds the same
+   numbers with Rm as the coordinate; re-running reuses every point; extending the list runs only
+   the new point (identity = content of the resolved case, not position).
+2. A sweep with an invalid point (Rm = -1), a point whose flow turns NaN during the run, and a
+   point stopped by max_time: each is recorded (failed with its message / unconverged) and the
+   valid point still completes. The valid point's flow u = (sin z, cos z, 0) is planar, so it
+   cannot be a dynamo (Zeldovich 1957, Sov. Phys. JETP 4, 460, antidynamo theorem for planar
+   flows; from memory): gamma < 0.
+
+Runtime: 6-30 s on 2 shared cores, depending on load (worker processes start in ~1 s).
+"""
+
+from __future__ import annotations
+
+import json
+
+import numpy as np
+import pytest
+
+from kindyn.cli import main
+from kindyn.output.netcdf import read_dataset
+
+ABC_SWEEP = """\
+[domain]
+grid = [8, 8, 8]
+[flow]
+type = "abc"
+[magnetic]
+Rm = 3.0
+seed = 3
+[run]
+tolerance = 1e-3
+[numerics]
+planning = "estimate"
+[output]
+figure = false
+[sweep]
+"magnetic.Rm" = [2, 3, 4, 6]
+"""
+
+
+def run_json(capsys, argv):
+    code = main(argv)
+    captured = capsys.readouterr()
+    assert code == 0, captured.err
+    return json.loads(captured.out)
+
+
+def test_four_point_sweep_equals_four_separate_runs(write_case, tmp_path, capsys):
+    path = write_case(ABC_SWEEP)
+    out = tmp_path / "sweep"
+    sweep = run_json(capsys, ["sweep", str(path), "--out", str(out), "--workers", "2", "--json", "--quiet"])
+    assert [p["magnetic.Rm"] for p in sweep["points"]] == [2, 3, 4, 6]
+    assert all(p["status"] == "converged" and not p["reused"] for p in sweep["points"])
+    for point in sweep["points"]:
+        rm = point["magnetic.Rm"]
+        single = run_json(capsys, ["run", str(path), "--set", f"magnetic.Rm={rm}", "--out", str(tmp_path / f"run{rm}"),
+                                   "--json", "--quiet"])
+        for key in ("growth_rate", "growth_rate_error", "frequency", "Rm"):
+            assert point[key] == pytest.approx(single[key], rel=1e-12, abs=1e-15), (rm, key)
+        assert point["converged"] == single["converged"]
+        record = json.loads((out / "points" / f"{point['identity']}.json").read_text())
+        assert (record["steps"], record["time"]) == (single["steps"], single["time"])
+        point_file = read_dataset(point["output"])
+        assert point_file["attributes"]["result_growth_rate"] == pytest.approx(single["growth_rate"], rel=1e-12)
+    summary = read_dataset(sweep["summary"])
+    np.testing.assert_array_equal(summary["magnetic_Rm"], [2.0, 3.0, 4.0, 6.0])
+    np.testing.assert_allclose(summary["growth_rate"], [p["growth_rate"] for p in sweep["points"]], rtol=1e-15)
+    assert list(summary["status"]) == ["converged"] * 4
+    assert summary["attributes"]["complete"] == 1
+
+    # re-run: every point reused, same numbers; an extended list runs only its new point
+    again = run_json(capsys, ["sweep", str(path), "--out", str(out), "--workers", "2", "--json", "--quiet"])
+    assert all(p["reused"] for p in again["points"])
+    assert [p["growth_rate"] for p in again["points"]] == [p["growth_rate"] for p in sweep["points"]]
+    wider_case = write_case(ABC_SWEEP.replace("[2, 3, 4, 6]", "[1.5, 2, 3, 4, 6]"), "w.toml")
+    wider = run_json(capsys, ["sweep", str(wider_case), "--out", str(out), "--workers", "2", "--json", "--quiet"])
+    assert [p["reused"] for p in wider["points"]] == [False, True, True, True, True]
+
+
+FAILING_SWEEP = """\
+[domain]
+grid = [8, 8, 8]
+[flow]
+type = "formula"
+ux = "sin(z)"
+uy = "cos(z)"
+uz = "0"
+[magnetic]
+Rm = 3.0
+[run]
+tolerance = 1e-3
+[numerics]
+planning = "estimate"
+[output]
+figure = true
+field = false
+[sweep]
+combine = "zip"
+"flow.ux" = ["sin(z)", "sin(z)*sqrt(2 - t)", "sin(z)", "sin(z)"]
+"flow.uy" = ["cos(z)", "cos(z)*sqrt(2 - t)", "cos(z)", "cos(z)"]
+"magnetic.Rm" = [3.0, 3.0, -1.0, 3.0]
+"run.max_time" = [2000.0, 2000.0, 2000.0, 12.0]
+"""
+
+
+def test_failing_points_are_recorded_and_the_sweep_goes_on(write_case, tmp_path, capsys):
+    path = write_case(FAILING_SWEEP)
+    out = tmp_path / "out"
+    code = main(["sweep", str(path), "--out", str(out), "--workers", "2", "--json"])
+    captured = capsys.readouterr()
+    assert code == 0 and "Traceback" not in captured.err
+    points = json.loads(captured.out)["points"]
+    good, nan, invalid, short = points
+    assert good["status"] == "converged" and good["growth_rate"] < 0  # planar flow: no dynamo (Zeldovich)
+    assert nan["status"] == "failed" and "nan" in nan["message"] and nan["growth_rate"] is None
+    assert invalid["status"] == "failed" and "magnetic.Rm" in invalid["message"] and invalid["identity"] is None
+    assert short["status"] == "unconverged" and "max_time" in short["message"] and short["growth_rate"] is not None
+    assert "FAILED" in captured.err and "ETA" in captured.err
+    summary = read_dataset(json.loads(captured.out)["summary"])
+    assert list(summary["status"]) == ["converged", "failed", "failed", "unconverged"]
+    assert np.isnan(summary["growth_rate"][1]) and summary["converged"].tolist() == [1, 0, 0, 0]
+    assert (out / "case-sweep.png").exists()
+    # a re-run retries the failed run (it fails again), reuses the finished ones
+    again = json.loads((main(["sweep", str(path), "--out", str(out), "--json", "--quiet"]) == 0
+                        and capsys.readouterr().out) or "{}")["points"]
+    assert [p["reused"] for p in again] == [True, False, False, True]
