@@ -149,6 +149,17 @@ def load_case(path, overrides=(), text: str | None = None) -> Case:
 
 
 def validate_case(data: dict, file: str, text: str = "", overrides=()) -> Case:
+    """Validate parsed TOML; an error in a key set by ``--set`` names the override, not the file."""
+    try:
+        return _validate(data, file, text, overrides)
+    except CaseError as exc:
+        overridden = {".".join(parse_override(o)[0]) for o in overrides}
+        if exc.key in overridden:
+            raise CaseError(f"--set (over {file})", exc.key, exc.value, exc.expected) from None
+        raise
+
+
+def _validate(data: dict, file: str, text: str, overrides) -> Case:
     from kindyn.case.sections import SECTIONS, FREEFORM_SECTIONS
 
     known = set(SECTIONS) | set(FREEFORM_SECTIONS) | {"flow"}
