@@ -16,12 +16,10 @@ import numpy as np
 from kindyn.commands.common import add_case_arguments, case_from_args, output_folder, print_json, say
 from kindyn.eigen.solve import solve_modes
 from kindyn.errors import CaseError
+from kindyn.diagnostics.spectra import resolution_caution
 
 HELP = "leading eigenvalues and eigenmodes (Krylov solve; Floquet for periodic flows; planar reduction)"
 
-RESOLUTION_CAUTION = ("the leading eigenfield's spectrum at the dealiasing cut-off is {ratio:.2g} of its peak "
-                      "(threshold {threshold:g}): the grid may be too coarse, and under-resolved solves can "
-                      "show spurious growth; repeat on a finer grid")
 TIME_STEP_CAUTION = ("eigenvalues carry the time scheme's O(dt^4) error (dt = {dt:.3g}); repeat with a smaller "
                      "modes.cfl to check the digits you need")
 
@@ -111,7 +109,7 @@ def execute(args) -> int:
     summary = summary_of(case, outcome)
     cautions = [TIME_STEP_CAUTION.format(dt=outcome.time_step)]
     if outcome.resolution_warning:
-        caution = RESOLUTION_CAUTION.format(ratio=outcome.cutoff_ratio, threshold=case.run.resolution_threshold)
+        caution = resolution_caution(outcome.cutoff_ratio, case.run.resolution_threshold, what="leading eigenfield's spectrum")
         cautions.insert(0, caution)
         say(f"kindyn modes: warning: {caution}")
     from kindyn.output.modes_file import write_modes_file

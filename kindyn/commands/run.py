@@ -8,12 +8,10 @@ from kindyn.commands.common import add_case_arguments, case_from_args, output_fo
 from kindyn.output.checkpoint import Checkpoint
 from kindyn.output.growth_file import result_summary, write_growth_file
 from kindyn.run import run_growth
+from kindyn.diagnostics.spectra import resolution_caution
 
 HELP = "integrate the induction equation until the growth rate converges"
 
-RESOLUTION_CAUTION = ("the magnetic spectrum at the dealiasing cut-off is {ratio:.2g} of its peak "
-                      "(threshold {threshold:g}): the run may be under-resolved, and under-resolved runs "
-                      "can show spurious growth; repeat on a finer grid")
 
 
 def add_arguments(parser) -> None:
@@ -44,7 +42,7 @@ def execute(args) -> int:
     summary = result_summary(case, outcome)
     caution = ""
     if outcome.resolution_warning:
-        caution = RESOLUTION_CAUTION.format(ratio=outcome.cutoff_ratio, threshold=case.run.resolution_threshold)
+        caution = resolution_caution(outcome.cutoff_ratio, case.run.resolution_threshold)
         say(f"kindyn run: warning: {caution}")
     field = outcome.field if case.output.field else None
     write_growth_file(nc_path, case, outcome, field, extra={"resolution_caution": caution})

@@ -47,3 +47,10 @@ def cutoff_ratio(b_hat: np.ndarray, box, axes=(0, 1, 2)) -> float:
     if peak <= 0 or last < 1:
         return 0.0
     return float(spectrum[min(last, spectrum.size - 1)] / peak)
+
+
+def resolution_caution(ratio: float, threshold: float, what: str = "magnetic spectrum") -> str:
+    """The sentence shown when :func:`cutoff_ratio` exceeds the case's threshold."""
+    return (f"the {what} at the dealiasing cut-off is {ratio:.2g} of its peak (threshold {threshold:g}): "
+            "the grid may be too coarse, and under-resolved runs can show spurious growth; "
+            "repeat on a finer grid")

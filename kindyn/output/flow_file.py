@@ -9,10 +9,8 @@ energy spectrum ``E_s`` and helicity spectrum ``H_s`` (``sum E_s = <|u|^2>/2``,
 
 from __future__ import annotations
 
-import json
 
-from kindyn import __version__
-from kindyn.output.netcdf import CONVENTIONS, add_grid, add_variable, atomic_dataset, set_attributes
+from kindyn.output.netcdf import provenance_attributes, add_grid, add_variable, atomic_dataset, set_attributes
 
 
 def write_flow_file(path, case, summary: dict, u, wavenumbers, energy_spectrum, helicity_spectrum,
@@ -22,15 +20,7 @@ def write_flow_file(path, case, summary: dict, u, wavenumbers, energy_spectrum, 
     scalars["cautions"] = "; ".join(summary.get("cautions", [])) or "none"
     with atomic_dataset(path) as ds:
         set_attributes(ds, {
-            "Conventions": CONVENTIONS,
-            "title": f"kindyn flow diagnostics: {case.name}",
-            "source": f"kindyn {__version__}",
-            "kindyn_version": __version__,
-            "case_file": case.path,
-            "case_text": case.text,
-            "case_overrides": list(case.overrides),
-            "case_resolved": json.dumps(case.resolved, sort_keys=True),
-            "flow_type": case.flow_type,
+            **provenance_attributes(case, f"kindyn flow diagnostics: {case.name}"),
             "snapshot_time": float(time),
             **scalars,
         })

@@ -8,12 +8,10 @@ version.
 
 from __future__ import annotations
 
-import json
 
 import numpy as np
 
-from kindyn import __version__
-from kindyn.output.netcdf import CONVENTIONS, add_grid, add_variable, atomic_dataset, set_attributes
+from kindyn.output.netcdf import provenance_attributes, add_grid, add_variable, atomic_dataset, set_attributes
 
 
 def result_summary(case, outcome) -> dict:
@@ -56,15 +54,7 @@ def write_growth_file(path, case, outcome, field_physical=None, extra=None) -> N
     summary = result_summary(case, outcome)
     with atomic_dataset(path) as ds:
         set_attributes(ds, {
-            "Conventions": CONVENTIONS,
-            "title": f"kindyn kinematic dynamo run: {case.name}",
-            "source": f"kindyn {__version__}",
-            "kindyn_version": __version__,
-            "case_file": case.path,
-            "case_text": case.text,
-            "case_overrides": list(case.overrides),
-            "case_resolved": json.dumps(case.resolved, sort_keys=True),
-            "flow_type": case.flow_type,
+            **provenance_attributes(case, f"kindyn kinematic dynamo run: {case.name}"),
             "uniform_field_mode": "excluded: B has zero mean initially; the k = 0 mode is neutral and stays zero",
             "caution": "an under-resolved run can show spurious growth; check resolution_warning and "
                        "repeat on a finer grid",

@@ -23,12 +23,10 @@ Coordinates have no endpoint; attributes are converted by :func:`kindyn.output.n
 
 from __future__ import annotations
 
-import json
 
 import numpy as np
 
-from kindyn import __version__
-from kindyn.output.netcdf import CONVENTIONS, add_grid, add_variable, atomic_dataset, set_attributes
+from kindyn.output.netcdf import provenance_attributes, add_grid, add_variable, atomic_dataset, set_attributes
 
 
 def write_modes_file(path, case, outcome, summary: dict, cautions: list[str]) -> None:
@@ -36,15 +34,7 @@ def write_modes_file(path, case, outcome, summary: dict, cautions: list[str]) ->
     modes = outcome.modes
     with atomic_dataset(path) as ds:
         set_attributes(ds, {
-            "Conventions": CONVENTIONS,
-            "title": f"kindyn eigenmodes: {case.name}",
-            "source": f"kindyn {__version__}",
-            "kindyn_version": __version__,
-            "case_file": case.path,
-            "case_text": case.text,
-            "case_overrides": list(case.overrides),
-            "case_resolved": json.dumps(case.resolved, sort_keys=True),
-            "flow_type": case.flow_type,
+            **provenance_attributes(case, f"kindyn eigenmodes: {case.name}"),
             "method": outcome.method,
             "flow_kind": "time-periodic (Floquet multipliers of the period map)" if outcome.periodic else "steady",
             "frequency_modulus": outcome.frequency_modulus if outcome.frequency_modulus else "",

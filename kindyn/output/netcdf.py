@@ -54,6 +54,23 @@ def set_attributes(target, attributes: dict) -> None:
         target.setncattr(key, attribute_value(value))
 
 
+def provenance_attributes(case, title: str) -> dict:
+    """Global attributes every kindyn file carries: conventions, title, version and the case."""
+    from kindyn import __version__
+
+    return {
+        "Conventions": CONVENTIONS,
+        "title": title,
+        "source": f"kindyn {__version__}",
+        "kindyn_version": __version__,
+        "case_file": case.path,
+        "case_text": case.text,
+        "case_overrides": list(case.overrides),
+        "case_resolved": json.dumps(case.resolved, sort_keys=True),
+        "flow_type": case.flow_type,
+    }
+
+
 def add_variable(ds, name, dims, data, units="1", long_name="", standard_name=None, dtype="f8", **extra):
     var = ds.createVariable(name, dtype, dims, zlib=True, complevel=1)
     var[...] = data

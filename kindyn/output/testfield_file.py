@@ -18,12 +18,10 @@ conventions, the cautions, the kernel fits, the closure check and the resolved c
 
 from __future__ import annotations
 
-import json
 
 import numpy as np
 
-from kindyn import __version__
-from kindyn.output.netcdf import CONVENTIONS, add_variable, atomic_dataset, set_attributes
+from kindyn.output.netcdf import provenance_attributes, add_variable, atomic_dataset, set_attributes
 
 AXES = "xyz"
 
@@ -36,15 +34,7 @@ def write_testfield_file(path, case, summary: dict, arrays: dict, attributes: di
     """
     with atomic_dataset(path) as ds:
         set_attributes(ds, {
-            "Conventions": CONVENTIONS,
-            "title": f"kindyn test-field coefficients: {case.name}",
-            "source": f"kindyn {__version__}",
-            "kindyn_version": __version__,
-            "case_file": case.path,
-            "case_text": case.text,
-            "case_overrides": list(case.overrides),
-            "case_resolved": json.dumps(case.resolved, sort_keys=True),
-            "flow_type": case.flow_type,
+            **provenance_attributes(case, f"kindyn test-field coefficients: {case.name}"),
             **attributes,
             **{f"result_{k}": v for k, v in summary.items() if not isinstance(v, (list, dict))},
         })

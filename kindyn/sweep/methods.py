@@ -12,10 +12,8 @@ from __future__ import annotations
 
 import importlib
 from pathlib import Path
+from kindyn.diagnostics.spectra import resolution_caution
 
-RESOLUTION_CAUTION = ("the magnetic spectrum at the dealiasing cut-off is {ratio:.2g} of its peak "
-                      "(threshold {threshold:g}): the run may be under-resolved, and under-resolved runs "
-                      "can show spurious growth; repeat on a finer grid")
 RESULT_KEYS = ("growth_rate", "growth_rate_error", "frequency", "converged", "Rm", "resolution_warning",
                "stop_reason")
 
@@ -30,7 +28,7 @@ def growth_point(case, output: Path, checkpoint: Path) -> dict:
     outcome = run_growth(case, checkpoint=saved)
     caution = ""
     if outcome.resolution_warning:
-        caution = RESOLUTION_CAUTION.format(ratio=outcome.cutoff_ratio, threshold=case.run.resolution_threshold)
+        caution = resolution_caution(outcome.cutoff_ratio, case.run.resolution_threshold)
     field = outcome.field if case.output.field else None
     write_growth_file(output, case, outcome, field, extra={"resolution_caution": caution})
     saved.remove()
@@ -49,8 +47,7 @@ def modes_point(case, output: Path, checkpoint: Path) -> dict:
     summary = point_summary(case, outcome)
     cautions = []
     if outcome.resolution_warning:
-        cautions.append(RESOLUTION_CAUTION.format(ratio=outcome.cutoff_ratio,
-                                                  threshold=case.run.resolution_threshold))
+        cautions.append(resolution_caution(outcome.cutoff_ratio, case.run.resolution_threshold))
     write_modes_file(output, case, outcome, summary, cautions)
     return summary
 
