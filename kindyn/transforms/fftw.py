@@ -1,7 +1,14 @@
 """pyfftw engine: one batched real-to-complex and one complex-to-real plan, built once.
 
+Beyond the buffer protocol of :mod:`kindyn.transforms` (``real``, ``spectral``, normalised
+``forward()``, ``backward()``), this engine offers ``forward(normalise=False)``: the plain sum
+``sum_x f(x) exp(-i k.x)``, ``N = nx ny nz`` times the Fourier coefficients
+(:attr:`FFTWEngine.unnormalised_forward` says so). A caller that multiplies the result by a spectral
+factor anyway (the induction operator's curl) folds ``1/N`` into that factor and saves one pass over
+the spectral buffer; every other caller keeps the normalised default.
+
 Planning (``measure``/``patient``) overwrites the buffers, so plans are made before anything is
-stored in them. See :mod:`kindyn.transforms` for the buffer protocol and normalisation.
+stored in them. FFTW runs on ``settings.threads`` threads.
 """
 
 from __future__ import annotations
@@ -18,12 +25,13 @@ class FFTWEngine:
     """Batched 3-D transforms over axes ``(1, 2, 3)`` of ``(ncomp, nx, ny, nz)`` buffers."""
 
     name = "fftw"
+    unnormalised_forward = True  # forward(normalise=False) is available
 
     def __init__(self, box: Box, settings, ncomp: int = 3):
         from kindyn.transforms import PRECISIONS
 
         real_dtype, complex_dtype = PRECISIONS[settings.precision]
-        self.box, self.ncomp = box, ncomp
+        self.box, self.ncomp, self.threads = box, ncomp, settings.threads
         self.real = pyfftw.empty_aligned((ncomp, *box.shape), dtype=real_dtype)
         self.spectral = pyfftw.empty_aligned((ncomp, *box.spectral_shape), dtype=complex_dtype)
         flags = (_FLAGS[settings.planning],)
@@ -36,10 +44,11 @@ class FFTWEngine:
         self.real.fill(0)
         self.spectral.fill(0)
 
-    def forward(self) -> None:
-        """``spectral <- FFT(real) / N``."""
+    def forward(self, normalise: bool = True) -> None:
+        """``spectral <- FFT(real) / N`` (``normalise=False``: the plain sum, ``N`` times larger)."""
         self._forward.execute()
-        np.multiply(self.spectral, self._scale, out=self.spectral)
+        if normalise:
+            np.multiply(self.spectral, self._scale, out=self.spectral)
 
     def backward(self) -> None:
         """``real <- inverse FFT(spectral)`` (unnormalised sum); destroys ``spectral``."""
