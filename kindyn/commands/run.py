@@ -62,7 +62,9 @@ def execute(args) -> int:
         state = "converged" if summary["converged"] else f"NOT converged ({outcome.stop_reason})"
         gamma = summary["growth_rate"]
         text = "n/a" if gamma is None else f"{gamma:+.6g} +- {summary['growth_rate_error']:.2g}"
-        say(f"growth rate gamma = {text}, frequency omega = {summary['frequency']}, {state}; "
+        omega = summary["frequency"]
+        omega_text = "n/a" if omega is None else f"{omega:.6g}"
+        say(f"growth rate gamma = {text}, frequency omega = {omega_text}, {state}; "
             f"t = {outcome.time:.5g}, {outcome.steps} steps, {outcome.wall_seconds:.1f} s")
         say(f"wrote {nc_path}" + (f" and {png_path}" if case.output.figure else ""))
     return 0
