@@ -92,6 +92,7 @@ class InductionOperator:
                                   for coeffs in self._ik_blocks]
         self._velocity, self._velocity_time = None, None  # full grid array, made only when asked for
         self._components, self._components_time = None, None  # u_x, u_y, u_z as the flow returns them
+        self._last_stage_time = None  # for renovating flows, see _evaluation_time
         plane = box.shape[1] * box.shape[2] * np.dtype(real_dtype).itemsize
         width = max(1, SLAB_BYTES // plane)
         self._slabs = [slice(i, min(i + width, box.shape[0])) for i in range(0, box.shape[0], width)]
@@ -107,6 +108,26 @@ class InductionOperator:
             sample_velocity(self.flow, self.box, t, out=self._velocity)
             self._velocity_time = t
         return self._velocity
+
+    def _evaluation_time(self, t: float) -> float:
+        """Time at which to sample the flow for a stage at ``t``.
+
+        A renovating flow (attribute ``renewal_time`` tau) is redrawn at multiples of tau and is
+        constant in between; its velocity is right-continuous. Steps are aligned with tau
+        (:mod:`kindyn.timestep`), so a renewal falls on a step boundary ``t_n + h``. The last stage of
+        the step that ends there (``c = 1``) must still see that step's realisation, while the first
+        stage of the next step, called at the same time, must see the new one. A call at a renewal
+        time that comes from an earlier stage is therefore sampled inside the step (half-way back to
+        the previous stage); a repeated call at the same time is sampled at the time itself.
+        """
+        tau = getattr(self.flow, "renewal_time", None)
+        previous, self._last_stage_time = self._last_stage_time, t
+        if not tau or previous is None or previous >= t:
+            return t
+        n = round(t / tau)
+        if n >= 1 and abs(t - n * tau) <= 1e-9 * tau:
+            return t - 0.5 * min(t - previous, tau)
+        return t
 
     def velocity_components(self, t: float) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
         """``u_x, u_y, u_z`` at ``t`` as 3-D arrays of the shapes the flow returns (each broadcasts to
@@ -151,7 +172,7 @@ class InductionOperator:
     def _emf_hat(self, t: float) -> None:
         """``engine.spectral <- (u(t) x B)_hat`` for ``B_hat`` in ``engine.spectral`` (``N`` times
         that on the unnormalised path)."""
-        engine, u = self.engine, self.velocity_components(t)
+        engine, u = self.engine, self.velocity_components(self._evaluation_time(t))
         engine.backward()
         b = engine.real
         for slab in self._slabs:  # in place, slab by slab: B is read once and written once

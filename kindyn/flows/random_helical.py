@@ -34,8 +34,9 @@ the band and box lengths only, so the same seed gives the same flow on any grid 
   ``n = floor(t/tau)`` (``t/tau`` within 1e-9 of a whole number is rounded to it, so round-off in
   ``t`` never selects the previous interval). ``renewal = "redraw"`` draws new amplitudes,
   ``"shift"`` translates the first draw by a random vector, ``"redraw-shift"`` does both.
-  At an interval boundary the velocity is the new realisation; the last Runge–Kutta stage of the
-  step that ends there therefore sees the new field (an O(dt/tau) error per renewal).
+  At an interval boundary the velocity is the new realisation; the induction operator samples the
+  last Runge–Kutta stage of a step that ends on a renewal inside that step, so each step sees one
+  realisation only (:meth:`kindyn.induction.InductionOperator._evaluation_time`).
 * ``"ornstein-uhlenbeck"`` (correlation time ``tau``): every amplitude is an OU process
   ``da = -a dt/tau + sqrt(2/tau) s dW`` with stationary variance ``s^2``, started from its stationary
   law. The path is sampled exactly on a fine grid ``t_i = i tau/OU_STEPS_PER_TAU`` (``a_{i+1} =
