@@ -21,11 +21,11 @@ from threadpoolctl import threadpool_limits
 
 from kindyn.diagnostics.growth import GrowthEstimate, estimate_growth
 from kindyn.diagnostics.spectra import cutoff_ratio, energy, shell_spectrum
-from kindyn.errors import NumericalError
+from kindyn.errors import CaseError, NumericalError
 from kindyn.fields import flow_field_hat, probe_indices, probe_vector, random_field_hat
 from kindyn.induction import InductionOperator
 from kindyn.stepping import TABLEAUX, IntegratingFactorStepper
-from kindyn.timestep import Timing, choose_timing
+from kindyn.timestep import Timing, cfl_time_step, choose_timing
 from kindyn.transforms import TransformSettings, make_engine, physical_from_spectral
 
 RUNAWAY_LOG_ENERGY_JUMP = 200.0
@@ -120,7 +120,10 @@ def run_growth(case, progress=None, checkpoint=None) -> RunOutcome:
     box, flow, settings = case.box, case.flow, case.run
     solver = build_solver(box, flow, case.eta, transform_settings(case), settings.scheme)
     timing = choose_timing(flow, box, settings.cfl, settings.time_step, settings.sample_interval)
+    check_stability(case, timing)
     tolerance, max_time = default_tolerance(case), default_max_time(case)
+    if settings.min_time > max_time:
+        raise CaseError(case.path, "run.min_time", settings.min_time, f"at most run.max_time = {max_time:g}")
     indices = probe_indices(box)
     record, t, step, log_amp = Record(), 0.0, 0, 0.0
     state = checkpoint.load(case) if checkpoint else None
@@ -137,9 +140,14 @@ def run_growth(case, progress=None, checkpoint=None) -> RunOutcome:
         _sample(record, b_hat, box, t, log_amp, indices)
     while True:
         for _ in range(timing.steps_per_sample):
+            if step >= settings.max_steps:
+                break
             solver.stepper.step(t, b_hat, timing.dt)
             step += 1
             t = step * timing.dt
+        if step >= settings.max_steps and len(record.times) and record.times[-1] != t:
+            stop_reason = f"reached max_steps = {settings.max_steps} before converging"
+            break
         log_amp = _sample(record, b_hat, box, t, log_amp, indices, step)
         samples_since_estimate += 1
         due = max(CHECKS_PER_ESTIMATE, len(record.times) // ESTIMATES_PER_RECORD)
@@ -174,6 +182,23 @@ def run_growth(case, progress=None, checkpoint=None) -> RunOutcome:
                       ratio > settings.resolution_threshold, step, t, timing, stop_reason,
                       wallclock.time() - started, bool(state),
                       float(np.sqrt(np.mean(np.sum(solver.operator.velocity(0.0) ** 2, axis=0)))))
+
+
+def check_stability(case, timing: Timing) -> None:
+    """Refuse a time step beyond the scheme's stability limit for advection (before computing).
+
+    ``|lambda dt| <= dt sum_i max|u_i| k_max,i`` must stay below the tableau's limit on the
+    imaginary axis; otherwise the run would report the growth of a numerical instability.
+    """
+    tableau = TABLEAUX[case.run.scheme]
+    rate = 1.0 / cfl_time_step(case.flow, case.box, 1.0)
+    courant = timing.dt * rate
+    if tableau.imaginary_stability and courant > tableau.imaginary_stability:
+        key, value = ("run.time_step", case.run.time_step) if case.run.time_step else ("run.cfl", case.run.cfl)
+        limit = tableau.imaginary_stability
+        raise CaseError(case.path, key, value,
+                        f"a step within the {tableau.name} stability limit: dt sum_i max|u_i| k_max,i = "
+                        f"{courant:.3g} exceeds {limit:.3g} (time_step <= {limit / rate:.3g}, cfl <= {limit:.3g})")
 
 
 def _estimate(record: Record, timing: Timing, tolerance: float, flow=None) -> GrowthEstimate:

@@ -28,9 +28,15 @@ def _number(value) -> float:
     if isinstance(value, str):
         match = _PI_PATTERN.match(value)
         if match:
-            num = float(match["num"]) if match["num"] else 1.0
-            den = float(match["den"]) if match["den"] else 1.0
-            return num * math.pi / den
+            try:
+                num = float(match["num"]) if match["num"] else 1.0
+                den = float(match["den"]) if match["den"] else 1.0
+                value = num * math.pi / den
+            except (ValueError, ZeroDivisionError):
+                raise ValueError("a finite multiple of pi such as \"2*pi\" or \"pi/2\"") from None
+            if not math.isfinite(value):
+                raise ValueError("a finite multiple of pi such as \"2*pi\" or \"pi/2\"")
+            return value
     raise ValueError("a number (or a multiple of pi written as \"2*pi\", \"pi/2\")")
 
 
@@ -77,6 +83,13 @@ def string(value) -> str:
     return value
 
 
+def file_stem(value) -> str:
+    """A plain file name: not empty, no folder separators, not '.' or '..'."""
+    if not isinstance(value, str) or not value.strip() or "/" in value or "\\" in value or value in (".", ".."):
+        raise ValueError("a plain file name without folders (letters, digits, '-', '_', '.')")
+    return value
+
+
 def choice(*options: str) -> Callable:
     def convert(value):
         if value not in options:
@@ -94,11 +107,6 @@ def triple(convert_one: Callable, what: str) -> Callable:
         except ValueError:
             raise ValueError(f"a list of three {what}") from None
     return convert
-
-
-def optional(convert_one: Callable) -> Callable:
-    """A key that may be left out (default ``None``)."""
-    return convert_one
 
 
 @dataclass(frozen=True)
@@ -128,7 +136,8 @@ RUN = {
     "cfl": Key(positive, 1.0, "time step = cfl / sum_i(max|u_i| k_max,i) (RK4 is stable up to about 2.8)"),
     "time_step": Key(positive, None, "fixed time step; overrides cfl"),
     "sample_interval": Key(positive, None,
-                           "time between samples of the energy (default 0.25/(U k_f); one flow period for periodic flows)"),
+                           "time between samples of the energy (default 0.25/(U k_f)); ignored for periodic and renovating "
+                           "flows, which are sampled 8 times per period or renewal"),
     "tolerance": Key(positive, None, "absolute tolerance on the growth rate (default 1e-4 U k_f)"),
     "min_time": Key(non_negative, 0.0, "never stop before this simulation time"),
     "max_time": Key(positive, None, "stop at this simulation time even if not converged (default 2000/(U k_f))"),
@@ -146,7 +155,7 @@ NUMERICS = {
 }
 
 OUTPUT = {
-    "name": Key(string, None, "base name of the output files (default: the case file's stem)"),
+    "name": Key(file_stem, None, "base name of the output files (default: the case file's stem)"),
     "figure": Key(boolean, True, "write PNG figures"),
     "field": Key(boolean, True, "write the final field on the grid to the netCDF file"),
 }
