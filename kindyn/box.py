@@ -118,6 +118,3 @@ class Box:
     @property
     def smallest_wavenumber(self) -> float:
         return 2 * np.pi / max(self.lengths)
-
-    def with_grid(self, grid) -> "Box":
-        return Box(self.lengths, tuple(grid))

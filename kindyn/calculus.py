@@ -40,12 +40,6 @@ def solenoidal_part_hat(v_hat: np.ndarray, box: Box) -> np.ndarray:
     return np.stack([v_hat[0] - kx * k_dot_v, v_hat[1] - ky * k_dot_v, v_hat[2] - kz * k_dot_v])
 
 
-def inverse_curl_hat(v_hat: np.ndarray, box: Box) -> np.ndarray:
-    """Solenoidal ``a`` with ``curl a = v`` for solenoidal ``v``: ``a_hat = i k x v_hat / |k|^2``."""
-    k2 = box.k_squared.copy()
-    k2[0, 0, 0] = np.inf
-    return curl_hat(v_hat, box) / k2
-
 
 def cross(a: np.ndarray, b: np.ndarray, out: np.ndarray, scratch: np.ndarray | None = None) -> np.ndarray:
     """Pointwise ``a x b`` of physical ``(3, ...)`` arrays into ``out`` (must alias neither).

@@ -206,13 +206,6 @@ class InductionOperator:
                 np.multiply(e[c], kb, out=tmp)
                 out[i] -= tmp
 
-    def curl_masked(self, e_hat: np.ndarray, out: np.ndarray) -> np.ndarray:
-        """``out = mask * (i k x e_hat)`` (full half-grid arrays) without temporaries."""
-        for block in self._dropped:
-            out[(slice(None), *block)] = 0
-        self._curl_on_blocks(e_hat, self.support.full_views(out), self._ik_blocks)
-        return out
-
 
 def _axis_slice(block, axis: int) -> tuple:
     """Index of a broadcastable wavenumber array (``(n,1,1)``, ``(1,n,1)`` or ``(1,1,n)``) on a block."""

@@ -79,7 +79,6 @@ def write_growth_file(path, case, outcome, field_physical=None, extra=None) -> N
                      long_name="shell spectrum of the final (unit-energy) magnetic field")
         if field_physical is not None:
             add_grid(ds, case.box)
-            ds.createDimension("component", 3)
             for i, axis in enumerate("xyz"):
                 add_variable(ds, f"magnetic_field_{axis}", ("x", "y", "z"), field_physical[i],
                              long_name=f"{axis} component of the final magnetic field (normalised to unit energy)")
