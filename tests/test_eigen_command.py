@@ -71,7 +71,7 @@ def test_json_eigenvalues_match_dense_reference_and_files_are_written(tmp_path, 
     # grid 16 keeps |m| <= 5: the same truncation as M = 5 in the reference
     assert eigenvalues[0, 0] == pytest.approx(dense[0].real, abs=1e-6)
     assert result["vertical_wavenumbers"][0] == 0.5
-    data = read_dataset(tmp_path / "out" / "roberts.modes.nc")
+    data = read_dataset(tmp_path / "out" / "roberts-modes.nc")
     np.testing.assert_allclose(data["growth_rate"], eigenvalues[:, 0], rtol=0, atol=1e-15)
     np.testing.assert_allclose(data["residual"], result["residuals"], rtol=0, atol=1e-20)
     assert data["eigenfield_x_real"].shape == (2, 16, 16)
@@ -83,7 +83,7 @@ def test_json_eigenvalues_match_dense_reference_and_files_are_written(tmp_path, 
     div = 1j * (k[:, None] * b_hat[0] + k[None, :] * b_hat[1] + 0.5 * b_hat[2])
     assert np.max(np.abs(div)) < 1e-12
     assert data["attributes"]["method"] == "planar"
-    assert (tmp_path / "out" / "roberts.modes.png").stat().st_size > 0
+    assert (tmp_path / "out" / "roberts-modes.png").stat().st_size > 0
 
 
 def test_box_method_writes_three_dimensional_eigenfields(tmp_path, capsys):
@@ -91,7 +91,7 @@ def test_box_method_writes_three_dimensional_eigenfields(tmp_path, capsys):
     assert main(["modes", str(path), "--out", str(tmp_path / "out"), "--count", "3", "--quiet"]) == 0
     table = capsys.readouterr().out
     assert "gamma" in table and "residual" in table
-    data = read_dataset(tmp_path / "out" / "abc.modes.nc")
+    data = read_dataset(tmp_path / "out" / "abc-modes.nc")
     assert data["growth_rate"].shape == (3,)
     assert np.all(np.diff(data["growth_rate"]) <= 1e-12)  # largest growth rate first
     real = np.stack([data[f"eigenfield_{c}_real"][0] for c in "xyz"])
@@ -127,7 +127,7 @@ def test_bad_input_is_one_line_and_exit_code_two(tmp_path, capsys, overrides, me
     assert main(argv) == 2
     err = capsys.readouterr().err.strip().splitlines()
     assert len(err) == 1 and message in err[0] and "abc.toml" in err[0]
-    assert not (tmp_path / "out" / "abc.modes.nc").exists()
+    assert not (tmp_path / "out" / "abc-modes.nc").exists()
 
 
 def test_count_option_must_be_positive(tmp_path, capsys):

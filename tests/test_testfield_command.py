@@ -58,7 +58,7 @@ def test_json_netcdf_and_figure(write_case, tmp_path, capsys):
         assert a[0][0] == pytest.approx(-1 / (0.5 * (1 + K ** 2)), rel=1e-12)
         assert e[1][1] == pytest.approx(1 / (0.5 * (1 + K ** 2)), rel=1e-12)
     assert any("SOCA" in c and "small Rm" in c for c in data["cautions"])
-    nc = read_dataset(tmp_path / "o" / "abc-cal.testfield.nc")
+    nc = read_dataset(tmp_path / "o" / "abc-cal-testfield.nc")
     np.testing.assert_array_equal(nc["alpha"], np.array(data["alpha"]))
     np.testing.assert_array_equal(nc["eta_K_soca"], np.array(data["eta_K_soca"]))
     assert nc["alpha_K"].shape == (2, 3, 2) and nc["beta_K"].shape == (2, 3, 2)
@@ -67,7 +67,7 @@ def test_json_netcdf_and_figure(write_case, tmp_path, capsys):
     assert "eta_ij (curl Bbar)_j" in attrs["sign_convention"]
     assert "small Rm" in attrs["soca_caution"] and "reset interval" in attrs["reset_caution"]
     assert json.loads(attrs["kernel_fits"])["alpha_soca"]["kc"] == pytest.approx(1.0, rel=1e-10)
-    assert (tmp_path / "o" / "abc-cal.testfield.png").stat().st_size > 1000
+    assert (tmp_path / "o" / "abc-cal-testfield.png").stat().st_size > 1000
 
 
 def test_time_dependent_flow_reports_errors_and_blocks(write_case, tmp_path, capsys):
@@ -94,7 +94,7 @@ def test_time_dependent_flow_reports_errors_and_blocks(write_case, tmp_path, cap
     assert data["method"] == "time"
     errors = np.array(data["alpha_K_error"], float)
     assert np.all(np.isfinite(errors)) and np.all(errors >= 0)
-    nc = read_dataset(tmp_path / "gp.testfield.nc")
+    nc = read_dataset(tmp_path / "gp-testfield.nc")
     assert nc["block_alpha_K"].shape[1:] == (1, 3, 2)
     assert nc["block_time"][0] == pytest.approx(2 * math.pi)  # blocks are whole flow periods
 
@@ -110,7 +110,7 @@ def test_bad_input_is_one_line_and_exit_code_2(write_case, tmp_path, capsys, ove
     assert code == 2
     lines = err.strip().splitlines()
     assert len(lines) == 1 and key in lines[0] and "bad.toml" in lines[0] and "Traceback" not in err
-    assert not (tmp_path / "bad.testfield.nc").exists()
+    assert not (tmp_path / "bad-testfield.nc").exists()
 
 
 def test_closure_check_reports_mean_field_and_direct_growth_rates(write_case, tmp_path, capsys):

@@ -95,14 +95,28 @@ def parse_override(text: str, file: str = "--set") -> tuple[list[str], object]:
     if "=" not in text:
         raise CaseError(file, text, MISSING, "an override written section.key=value")
     key, raw = text.split("=", 1)
-    parts = [p.strip() for p in key.strip().split(".")]
-    if len(parts) < 2 or not all(parts):
-        raise CaseError(file, key.strip(), raw, "a dotted key section.key")
+    parts = _key_path(key.strip())
+    if parts is None or len(parts) < 2 or not all(parts):
+        raise CaseError(file, key.strip(), raw, "a dotted key section.key (quote keys that contain dots: "
+                                               'sweep."magnetic.Rm")')
     try:
         value = tomllib.loads(f"v = {raw.strip()}")["v"]
     except tomllib.TOMLDecodeError:
         value = raw.strip()
     return parts, value
+
+
+def _key_path(key: str) -> list[str] | None:
+    """The parts of a TOML dotted key (``sweep."magnetic.Rm"`` -> ``["sweep", "magnetic.Rm"]``)."""
+    try:
+        node = tomllib.loads(f"{key} = 0")
+    except tomllib.TOMLDecodeError:
+        return None
+    parts = []
+    while isinstance(node, dict) and len(node) == 1:
+        (name, node), = node.items()
+        parts.append(name)
+    return parts if node == 0 else None
 
 
 EXCLUSIVE_KEYS = {("magnetic", "eta"): ("magnetic", "Rm"), ("magnetic", "Rm"): ("magnetic", "eta")}

@@ -2,8 +2,8 @@
 
 Prints the leading eigenvalues ``p = gamma + i omega`` with their residual norms (a table on stdout;
 progress and cautions on stderr); writes the
-eigenfields (physical space, real and imaginary parts) to ``OUT/NAME.modes.nc`` and a figure of the
-leading mode's ``|B|`` on slices to ``OUT/NAME.modes.png``. ``--json`` prints one object with at
+eigenfields (physical space, real and imaginary parts) to ``OUT/NAME-modes.nc`` and a figure of the
+leading mode's ``|B|`` on slices to ``OUT/NAME-modes.png``. ``--json`` prints one object with at
 least ``eigenvalues`` (list of ``[gamma, omega]``) and ``residuals``.
 """
 
@@ -100,7 +100,7 @@ def execute(args) -> int:
     if args.count is not None and args.count < 1:
         raise CaseError("", "--count", args.count, "a whole number >= 1")
     out = output_folder(args)
-    nc_path, png_path = out / f"{case.name}.modes.nc", out / f"{case.name}.modes.png"
+    nc_path, png_path = out / f"{case.name}-modes.nc", out / f"{case.name}-modes.png"
     if not args.quiet:
         say(f"kindyn modes {case.path}: {case.flow_type} flow, grid {list(case.box.grid)}, "
             f"Rm = {case.Rm:.6g} (eta = {case.eta:.6g})")

@@ -1,7 +1,7 @@
 """``kindyn testfield CASE.toml``: alpha and eta (beta) tensors by the test-field method, beside SOCA.
 
 Settings come from the case's ``[testfield]`` section (see :mod:`kindyn.testfield.settings`).
-Writes ``NAME.testfield.nc`` (all tensors with errors) and ``NAME.testfield.png`` (alpha and eta_t
+Writes ``NAME-testfield.nc`` (all tensors with errors) and ``NAME-testfield.png`` (alpha and eta_t
 versus K with SOCA) into ``--out``; ``--json`` prints one object on stdout with at least ``alpha``,
 ``alpha_soca`` (3 x 3, row = EMF component), ``K``, ``alpha_K``, ``eta_K``, ``alpha_K_soca``,
 ``eta_K_soca`` (one 3 x 2 list per K: row = EMF component x, y, z; column = the two mean-field
@@ -99,7 +99,7 @@ def execute(args) -> int:
 
     plan_from_case(case)  # every check that needs the box, before any output folder is made
     out = output_folder(args)
-    nc_path, png_path = out / f"{case.name}.testfield.nc", out / f"{case.name}.testfield.png"
+    nc_path, png_path = out / f"{case.name}-testfield.nc", out / f"{case.name}-testfield.png"
     progress = None if args.quiet else (lambda text: say("  " + text))
     if not args.quiet:
         say(f"kindyn testfield {case.path}: {case.flow_type} flow, grid {list(case.box.grid)}, "
