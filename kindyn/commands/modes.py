@@ -122,7 +122,8 @@ def execute(args) -> int:
         lead = outcome.leading
         where = f", kz = {lead.kz:.4g}" if outcome.method == "planar" else ""
         modes_figure(png_path, leading_slices(case, outcome),
-                     f"{case.name}: leading mode p = {lead.growth_rate:+.6g} {lead.frequency:+.6g} i{where}",
+                     f"{case.name}: leading mode p = {lead.growth_rate:+.6g} "
+                     f"{0.0 if abs(lead.frequency) < 1e-12 else lead.frequency:+.6g} i{where}",
                      warning="possibly under-resolved" if outcome.resolution_warning else "")
         figure = str(png_path)
     summary["output"] = str(nc_path)
