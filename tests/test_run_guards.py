@@ -59,3 +59,10 @@ def test_max_steps_is_honoured_inside_a_sample_interval(case, tmp_path, capsys):
     result = json.loads(capsys.readouterr().out)
     assert code == 0 and result["steps"] == 3 and result["converged"] is False
     assert "max_steps" in result["stop_reason"]
+
+
+@pytest.mark.parametrize("override, key", [("modes.time_step=1.0", "modes.time_step"), ("modes.cfl=6", "modes.cfl")])
+def test_eigen_solve_refuses_unstable_steps(case, tmp_path, capsys, override, key):
+    code = main(["modes", str(case), "--out", str(tmp_path / "o"), "--quiet", "--set", override])
+    err = capsys.readouterr().err.strip()
+    assert code == 2 and key in err and "stability limit" in err

@@ -117,6 +117,20 @@ def _steady_steps(settings, dt_max: float, turnover: float) -> tuple[float, int]
     return T / steps, steps
 
 
+def _check_stability(case, dt: float, dt_at_unit_cfl: float) -> None:
+    """Refuse a step beyond the scheme's stability limit for advection (as ``kindyn run`` does)."""
+    from kindyn.stepping import TABLEAUX
+
+    tableau = TABLEAUX[case.run.scheme]
+    courant = dt / dt_at_unit_cfl
+    if tableau.imaginary_stability and courant > tableau.imaginary_stability:
+        settings = case.modes
+        key, value = ("modes.time_step", settings.time_step) if settings.time_step else ("modes.cfl", settings.cfl)
+        raise CaseError(case.path, key, value,
+                        f"a step within the {tableau.name} stability limit: dt sum_i max|u_i| k_max,i = "
+                        f"{courant:.3g} exceeds {tableau.imaginary_stability:.3g}")
+
+
 def _arpack(settings) -> dict:
     return {"tolerance": settings.tolerance, "krylov_dimension": settings.krylov_dimension,
             "max_restarts": settings.max_restarts, "seed": settings.seed, "solver": settings.solver}
@@ -160,6 +174,7 @@ def _solve_box(case, count, kind, progress, with_fields) -> dict:
         dt = flow.period / steps
     else:
         dt, steps = _steady_steps(settings, dt_max, 1.0 / (flow.speed * flow.wavenumber))
+    _check_stability(case, dt, cfl_time_step(flow, box, 1.0))
     propagator = box_propagator(box, flow, case.eta, dt, steps, transform_settings(case), case.run.scheme)
     if progress:
         progress(f"box {list(box.grid)}: {propagator.size} unknowns, T = {propagator.time:.4g}, "
@@ -197,6 +212,7 @@ def _solve_planar(case, count, kind, progress, with_fields) -> dict:
         dt = flow.period / steps
     else:
         dt, steps = _steady_steps(settings, dt_max, 1.0 / (flow.speed * flow.wavenumber))
+    _check_stability(case, dt, planar_time_step(flow, widest, 1.0))
     solutions, candidates, applications = {}, [], 0
     for kz in wavenumbers:
         grid = PlanarGrid(lengths, plane, kz)
