@@ -28,6 +28,7 @@ class Timing:
     dt: float
     steps_per_sample: int
     samples_per_strobe: int  # samples between two points used by the growth estimator
+    courant: float  # dt * sum_i max|u_i| k_max,i, compared with the scheme's stability limit
 
     @property
     def sample_interval(self) -> float:
@@ -49,23 +50,28 @@ def max_speeds(flow, box, period: float | None) -> np.ndarray:
     return speeds
 
 
+def advection_rate(flow, box) -> float:
+    """``sum_i max|u_i| k_max,i``: the bound on ``|lambda|`` of the advective part (``dt = cfl / rate``)."""
+    return float(np.dot(max_speeds(flow, box, flow_time_period(flow)), box.max_kept_wavenumbers))
+
+
 def cfl_time_step(flow, box, cfl: float) -> float:
-    period = flow_time_period(flow)
-    rate = float(np.dot(max_speeds(flow, box, period), box.max_kept_wavenumbers))
+    rate = advection_rate(flow, box)
     return cfl / rate if rate > 0 else math.inf
 
 
 def choose_timing(flow, box, cfl: float, time_step: float | None, sample_interval: float | None) -> Timing:
     """Time step and sampling for a run (see module docstring)."""
     period = flow_time_period(flow)
-    dt = time_step if time_step else cfl_time_step(flow, box, cfl)
+    rate = advection_rate(flow, box)
+    dt = time_step if time_step else (cfl / rate if rate > 0 else math.inf)
     turnover = 1.0 / (flow.speed * flow.wavenumber)
     if period:
         steps_per_period = max(SAMPLES_PER_PERIOD, math.ceil(period / dt))
         steps_per_period = SAMPLES_PER_PERIOD * math.ceil(steps_per_period / SAMPLES_PER_PERIOD)
         dt = period / steps_per_period
-        return Timing(dt, steps_per_period // SAMPLES_PER_PERIOD, SAMPLES_PER_PERIOD)
+        return Timing(dt, steps_per_period // SAMPLES_PER_PERIOD, SAMPLES_PER_PERIOD, dt * rate)
     if not math.isfinite(dt):
         dt = 0.1 * turnover
     interval = sample_interval if sample_interval else 0.25 * turnover
-    return Timing(dt, max(1, round(interval / dt)), 1)
+    return Timing(dt, max(1, round(interval / dt)), 1, dt * rate)

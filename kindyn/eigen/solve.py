@@ -117,6 +117,20 @@ def _steady_steps(settings, dt_max: float, turnover: float) -> tuple[float, int]
     return T / steps, steps
 
 
+def _time_grid(case, kind: str, dt_at_unit_cfl: float) -> tuple[float, int]:
+    """``(dt, steps)`` of one propagation: whole flow periods for periodic flows, otherwise an even
+    number of steps over the propagation time; ``dt_at_unit_cfl`` is the step at ``cfl = 1``."""
+    settings, flow = case.modes, case.flow
+    dt_max = settings.time_step or settings.cfl * dt_at_unit_cfl
+    if kind == "periodic":
+        steps = steps_per_period(flow.period, dt_max)
+        dt = flow.period / steps
+    else:
+        dt, steps = _steady_steps(settings, dt_max, 1.0 / (flow.speed * flow.wavenumber))
+    _check_stability(case, dt, dt_at_unit_cfl)
+    return dt, steps
+
+
 def _check_stability(case, dt: float, dt_at_unit_cfl: float) -> None:
     """Refuse a step beyond the scheme's stability limit for advection (as ``kindyn run`` does)."""
     from kindyn.stepping import TABLEAUX
@@ -168,13 +182,7 @@ def _solve_box(case, count, kind, progress, with_fields) -> dict:
     from kindyn.transforms import physical_from_spectral
 
     box, flow, settings = case.box, case.flow, case.modes
-    dt_max = settings.time_step or cfl_time_step(flow, box, settings.cfl)
-    if kind == "periodic":
-        steps = steps_per_period(flow.period, dt_max)
-        dt = flow.period / steps
-    else:
-        dt, steps = _steady_steps(settings, dt_max, 1.0 / (flow.speed * flow.wavenumber))
-    _check_stability(case, dt, cfl_time_step(flow, box, 1.0))
+    dt, steps = _time_grid(case, kind, cfl_time_step(flow, box, 1.0))
     propagator = box_propagator(box, flow, case.eta, dt, steps, transform_settings(case), case.run.scheme)
     if progress:
         progress(f"box {list(box.grid)}: {propagator.size} unknowns, T = {propagator.time:.4g}, "
@@ -206,13 +214,7 @@ def _solve_planar(case, count, kind, progress, with_fields) -> dict:
     _check_plane(case, plane)
     wavenumbers = settings.kz or default_wavenumbers(box)
     widest = PlanarGrid(lengths, plane, max(wavenumbers))
-    dt_max = settings.time_step or planar_time_step(flow, widest, settings.cfl)
-    if kind == "periodic":
-        steps = steps_per_period(flow.period, dt_max)
-        dt = flow.period / steps
-    else:
-        dt, steps = _steady_steps(settings, dt_max, 1.0 / (flow.speed * flow.wavenumber))
-    _check_stability(case, dt, planar_time_step(flow, widest, 1.0))
+    dt, steps = _time_grid(case, kind, planar_time_step(flow, widest, 1.0))
     solutions, candidates, applications = {}, [], 0
     for kz in wavenumbers:
         grid = PlanarGrid(lengths, plane, kz)
