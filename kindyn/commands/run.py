@@ -6,9 +6,8 @@ import math
 
 from kindyn.commands.common import add_case_arguments, case_from_args, output_folder, print_json, say
 from kindyn.output.checkpoint import Checkpoint
-from kindyn.output.growth_file import result_summary, write_growth_file
+from kindyn.output.growth_file import record_growth_run
 from kindyn.run import run_growth
-from kindyn.diagnostics.spectra import resolution_caution
 
 HELP = "integrate the induction equation until the growth rate converges"
 
@@ -39,13 +38,9 @@ def execute(args) -> int:
             f"Rm = {case.Rm:.6g} (eta = {case.eta:.6g})")
     progress = None if args.quiet else (lambda t, e, tol: say(progress_line(t, e, tol)))
     outcome = run_growth(case, progress=progress, checkpoint=checkpoint)
-    summary = result_summary(case, outcome)
-    caution = ""
-    if outcome.resolution_warning:
-        caution = resolution_caution(outcome.cutoff_ratio, case.run.resolution_threshold)
+    summary, caution = record_growth_run(nc_path, case, outcome)
+    if caution:
         say(f"kindyn run: warning: {caution}")
-    field = outcome.field if case.output.field else None
-    write_growth_file(nc_path, case, outcome, field, extra={"resolution_caution": caution})
     if case.output.figure:
         from kindyn.output.figures import growth_figure
 

@@ -11,6 +11,7 @@ from __future__ import annotations
 
 import numpy as np
 
+from kindyn.diagnostics.spectra import resolution_caution
 from kindyn.output.netcdf import provenance_attributes, add_grid, add_variable, atomic_dataset, set_attributes
 
 
@@ -82,3 +83,14 @@ def write_growth_file(path, case, outcome, field_physical=None, extra=None) -> N
             for i, axis in enumerate("xyz"):
                 add_variable(ds, f"magnetic_field_{axis}", ("x", "y", "z"), field_physical[i],
                              long_name=f"{axis} component of the final magnetic field (normalised to unit energy)")
+
+
+def record_growth_run(path, case, outcome) -> tuple[dict, str]:
+    """Write the run record (with the final field when ``output.field``) and return
+    ``(summary, resolution caution or "")``: what ``kindyn run`` and a sweep point both do."""
+    caution = ""
+    if outcome.resolution_warning:
+        caution = resolution_caution(outcome.cutoff_ratio, case.run.resolution_threshold)
+    field = outcome.field if case.output.field else None
+    write_growth_file(path, case, outcome, field, extra={"resolution_caution": caution})
+    return result_summary(case, outcome), caution

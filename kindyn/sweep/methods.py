@@ -21,18 +21,13 @@ RESULT_KEYS = ("growth_rate", "growth_rate_error", "frequency", "converged", "Rm
 def growth_point(case, output: Path, checkpoint: Path) -> dict:
     """Time-step to a converged growth rate (:func:`kindyn.run.run_growth`), as ``kindyn run`` does."""
     from kindyn.output.checkpoint import Checkpoint
-    from kindyn.output.growth_file import result_summary, write_growth_file
+    from kindyn.output.growth_file import record_growth_run
     from kindyn.run import run_growth
 
     saved = Checkpoint(checkpoint)
-    outcome = run_growth(case, checkpoint=saved)
-    caution = ""
-    if outcome.resolution_warning:
-        caution = resolution_caution(outcome.cutoff_ratio, case.run.resolution_threshold)
-    field = outcome.field if case.output.field else None
-    write_growth_file(output, case, outcome, field, extra={"resolution_caution": caution})
+    summary, _ = record_growth_run(output, case, run_growth(case, checkpoint=saved))
     saved.remove()
-    return result_summary(case, outcome)
+    return summary
 
 
 def modes_point(case, output: Path, checkpoint: Path) -> dict:
