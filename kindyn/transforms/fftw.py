@@ -21,6 +21,38 @@ from kindyn.box import Box
 _FLAGS = {"estimate": "FFTW_ESTIMATE", "measure": "FFTW_MEASURE", "patient": "FFTW_PATIENT"}
 
 
+class PlanPair:
+    """A forward and a backward FFTW plan between two buffers, with the ``1/N`` normalisation.
+
+    Shared by the 3-D real engine here and the planar complex engine
+    (:mod:`kindyn.transforms.planar`). ``destroy_input`` lets the backward plan overwrite
+    ``spectral`` (required for fast multi-dimensional complex-to-real transforms).
+    """
+
+    def __init__(self, physical, spectral, axes, planning: str, threads: int, points: int,
+                 destroy_input: bool = False):
+        flags = (_FLAGS[planning],)
+        self._forward = pyfftw.FFTW(physical, spectral, axes=axes, direction="FFTW_FORWARD",
+                                    flags=flags, threads=threads)
+        backward_flags = flags + (("FFTW_DESTROY_INPUT",) if destroy_input else ())
+        self._backward = pyfftw.FFTW(spectral, physical, axes=axes, direction="FFTW_BACKWARD",
+                                     flags=backward_flags, threads=threads)
+        self._spectral = spectral
+        self._scale = physical.real.dtype.type(1.0 / points)
+        physical.fill(0)
+        spectral.fill(0)
+
+    def forward(self, normalise: bool = True) -> None:
+        """``spectral <- FFT(physical) / N`` (``normalise=False``: the plain sum, ``N`` times larger)."""
+        self._forward.execute()
+        if normalise:
+            np.multiply(self._spectral, self._scale, out=self._spectral)
+
+    def backward(self) -> None:
+        """``physical <- inverse FFT(spectral)`` (unnormalised sum)."""
+        self._backward.execute()
+
+
 class FFTWEngine:
     """Batched 3-D transforms over axes ``(1, 2, 3)`` of ``(ncomp, nx, ny, nz)`` buffers."""
 
@@ -34,22 +66,7 @@ class FFTWEngine:
         self.box, self.ncomp, self.threads = box, ncomp, settings.threads
         self.real = pyfftw.empty_aligned((ncomp, *box.shape), dtype=real_dtype)
         self.spectral = pyfftw.empty_aligned((ncomp, *box.spectral_shape), dtype=complex_dtype)
-        flags = (_FLAGS[settings.planning],)
-        axes = (1, 2, 3)
-        self._forward = pyfftw.FFTW(self.real, self.spectral, axes=axes, direction="FFTW_FORWARD",
-                                    flags=flags, threads=settings.threads)
-        self._backward = pyfftw.FFTW(self.spectral, self.real, axes=axes, direction="FFTW_BACKWARD",
-                                     flags=flags + ("FFTW_DESTROY_INPUT",), threads=settings.threads)
-        self._scale = real_dtype(1.0 / box.points)
-        self.real.fill(0)
-        self.spectral.fill(0)
-
-    def forward(self, normalise: bool = True) -> None:
-        """``spectral <- FFT(real) / N`` (``normalise=False``: the plain sum, ``N`` times larger)."""
-        self._forward.execute()
-        if normalise:
-            np.multiply(self.spectral, self._scale, out=self.spectral)
-
-    def backward(self) -> None:
-        """``real <- inverse FFT(spectral)`` (unnormalised sum); destroys ``spectral``."""
-        self._backward.execute()
+        plans = PlanPair(self.real, self.spectral, (1, 2, 3), settings.planning, settings.threads,
+                         box.points, destroy_input=True)
+        self.forward = plans.forward    # spectral <- FFT(real)/N; forward(normalise=False): the plain sum
+        self.backward = plans.backward  # real <- inverse FFT(spectral); destroys spectral

@@ -22,9 +22,6 @@ from __future__ import annotations
 import numpy as np
 import scipy.fft
 
-_FLAGS = {"estimate": "FFTW_ESTIMATE", "measure": "FFTW_MEASURE", "patient": "FFTW_PATIENT"}
-
-
 class ScipyPlanarEngine:
     """Batched complex 2-D transforms over axes ``(1, 2)`` with ``scipy.fft``."""
 
@@ -52,26 +49,15 @@ class FFTWPlanarEngine:
     def __init__(self, grid: tuple[int, int], ncomp: int = 3, threads: int = 1, planning: str = "measure"):
         import pyfftw
 
+        from kindyn.transforms.fftw import PlanPair
+
         nx, ny = _checked(grid)
         self.grid, self.ncomp = (nx, ny), ncomp
         self.physical = pyfftw.empty_aligned((ncomp, nx, ny), dtype=np.complex128)
         self.spectral = pyfftw.empty_aligned((ncomp, nx, ny), dtype=np.complex128)
-        flags = (_FLAGS[planning],)
-        self._forward = pyfftw.FFTW(self.physical, self.spectral, axes=(1, 2), direction="FFTW_FORWARD",
-                                    flags=flags, threads=threads)
-        self._backward = pyfftw.FFTW(self.spectral, self.physical, axes=(1, 2), direction="FFTW_BACKWARD",
-                                     flags=flags, threads=threads)
-        self._scale = 1.0 / (nx * ny)
-        self.physical.fill(0)
-        self.spectral.fill(0)
-
-    def forward(self, normalise: bool = True) -> None:
-        self._forward.execute()
-        if normalise:
-            np.multiply(self.spectral, self._scale, out=self.spectral)
-
-    def backward(self) -> None:
-        self._backward.execute()
+        plans = PlanPair(self.physical, self.spectral, (1, 2), planning, threads, nx * ny)
+        self.forward = plans.forward    # spectral <- FFT2(physical)/(nx ny); normalise=False: the plain sum
+        self.backward = plans.backward  # physical <- inverse FFT2(spectral); spectral kept
 
 
 def make_planar_engine(grid, ncomp: int = 3, engine: str = "fftw", threads: int = 1, planning: str = "measure"):
