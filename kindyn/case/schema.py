@@ -98,15 +98,23 @@ def choice(*options: str) -> Callable:
     return convert
 
 
-def triple(convert_one: Callable, what: str) -> Callable:
+def list_of(convert_one: Callable, what: str, length: int | None = None) -> Callable:
+    """A TOML list converted item by item: ``length`` items, or any non-empty list when ``None``."""
+    count = {2: "two", 3: "three"}.get(length, str(length))
+    expected = f"a list of {count} {what}" if length else f"a non-empty list of {what}"
+
     def convert(value):
-        if not isinstance(value, list) or len(value) != 3:
-            raise ValueError(f"a list of three {what}")
+        if not isinstance(value, list) or not value or (length and len(value) != length):
+            raise ValueError(expected)
         try:
             return tuple(convert_one(v) for v in value)
         except ValueError:
-            raise ValueError(f"a list of three {what}") from None
+            raise ValueError(expected) from None
     return convert
+
+
+def triple(convert_one: Callable, what: str) -> Callable:
+    return list_of(convert_one, what, length=3)
 
 
 @dataclass(frozen=True)

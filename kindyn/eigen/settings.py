@@ -12,26 +12,15 @@ from kindyn.case.schema import Key
 METHODS = ("auto", "box", "planar")
 
 
-def _wavenumber_list(value) -> tuple[float, ...]:
-    if not isinstance(value, list) or not value:
-        raise ValueError("a non-empty list of vertical wavenumbers >= 0 (numbers or multiples of pi)")
-    try:
-        values = tuple(schema.non_negative(v) for v in value)
-    except ValueError:
-        raise ValueError("a non-empty list of vertical wavenumbers >= 0 (numbers or multiples of pi)") from None
-    return values
-
-
 def _planar_grid(value) -> tuple[int, int]:
-    if not isinstance(value, list) or len(value) != 2:
-        raise ValueError("a list of two whole numbers [nx, ny], each >= 4")
-    try:
-        nx, ny = (schema.positive_integer(v) for v in value)
-    except ValueError:
-        raise ValueError("a list of two whole numbers [nx, ny], each >= 4") from None
+    nx, ny = _two_counts(value)
     if min(nx, ny) < 4:
         raise ValueError("a list of two whole numbers [nx, ny], each >= 4")
     return nx, ny
+
+
+_two_counts = schema.list_of(schema.positive_integer, "whole numbers [nx, ny], each >= 4", length=2)
+_wavenumber_list = schema.list_of(schema.non_negative, "vertical wavenumbers >= 0 (numbers or multiples of pi)")
 
 
 def _non_negative_integer(value) -> int:

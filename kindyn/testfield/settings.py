@@ -12,29 +12,18 @@ from __future__ import annotations
 import math
 from dataclasses import dataclass
 
-from kindyn.case.schema import Key, boolean, choice, non_negative, positive, positive_integer
+from kindyn.case.schema import Key, boolean, list_of, choice, non_negative, positive, positive_integer
 from kindyn.errors import CaseError
 
 AXES = ("x", "y", "z")
 
 
-def _list_of(convert_one, what: str):
-    def convert(value):
-        if not isinstance(value, list) or not value:
-            raise ValueError(f"a non-empty list of {what}")
-        try:
-            return tuple(convert_one(v) for v in value)
-        except ValueError:
-            raise ValueError(f"a non-empty list of {what}") from None
-    return convert
-
-
 TESTFIELD_KEYS = {
     "axis": Key(choice(*AXES), "z",
                 "averaging axis: mean fields depend on this coordinate only (planar averages over the other two)"),
-    "modes": Key(_list_of(positive_integer, "whole numbers >= 1"), None,
+    "modes": Key(list_of(positive_integer, "whole numbers >= 1"), None,
                  "test-field wavenumbers as mode numbers m along the axis, K = 2 pi m / L_axis (default [1])"),
-    "wavenumbers": Key(_list_of(positive, "positive numbers"), None,
+    "wavenumbers": Key(list_of(positive, "positive numbers"), None,
                        "test-field wavenumbers K (whole multiples of 2 pi / L_axis); give modes or wavenumbers"),
     "uniform": Key(boolean, True, "also solve the three uniform test fields (the full 3x3 alpha, box average)"),
     "method": Key(choice("auto", "direct", "time"), "auto",
