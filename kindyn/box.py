@@ -22,6 +22,21 @@ from functools import cached_property
 import numpy as np
 
 
+def fft_mode_numbers(n: int) -> np.ndarray:
+    """Integer mode numbers of an ``n``-point transform in FFT order (``0, 1, .., -1``)."""
+    return np.fft.fftfreq(n, 1.0 / n).astype(int)
+
+
+def kept_by_two_thirds(m: np.ndarray, n: int) -> np.ndarray:
+    """The 2/3 rule on one axis: mode ``m`` of an ``n``-point grid is kept when ``3 |m| < n``."""
+    return 3 * np.abs(m) < n
+
+
+def max_kept_mode(n: int) -> int:
+    """Largest mode number the 2/3 rule keeps on an ``n``-point axis."""
+    return (n - 1) // 3
+
+
 @dataclass(frozen=True)
 class Box:
     """Triply periodic box ``[0, Lx) x [0, Ly) x [0, Lz)`` sampled on an ``nx x ny x nz`` grid."""
@@ -73,8 +88,7 @@ class Box:
     def mode_numbers(self) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
         """Integer mode numbers ``m`` (broadcastable, half grid on the last axis)."""
         nx, ny, nz = self.grid
-        mx = np.fft.fftfreq(nx, 1.0 / nx).astype(int)
-        my = np.fft.fftfreq(ny, 1.0 / ny).astype(int)
+        mx, my = fft_mode_numbers(nx), fft_mode_numbers(ny)
         mz = np.arange(nz // 2 + 1)
         return (mx[:, None, None], my[None, :, None], mz[None, None, :])
 
@@ -94,12 +108,12 @@ class Box:
         """Boolean mask of the modes kept by the 2/3 rule (``3 |m_i| < n_i`` on every axis)."""
         mx, my, mz = self.mode_numbers
         nx, ny, nz = self.grid
-        return (3 * np.abs(mx) < nx) & (3 * np.abs(my) < ny) & (3 * mz < nz)
+        return kept_by_two_thirds(mx, nx) & kept_by_two_thirds(my, ny) & kept_by_two_thirds(mz, nz)
 
     @property
     def max_kept_modes(self) -> tuple[int, int, int]:
         """Largest mode number kept on each axis by the 2/3 rule."""
-        return tuple((n - 1) // 3 for n in self.grid)
+        return tuple(max_kept_mode(n) for n in self.grid)
 
     @property
     def max_kept_wavenumbers(self) -> tuple[float, float, float]:

@@ -26,6 +26,7 @@ from functools import cached_property
 
 import numpy as np
 
+from kindyn.box import fft_mode_numbers, kept_by_two_thirds, max_kept_mode
 from kindyn.calculus import cross
 from kindyn.errors import FlowError
 from kindyn.stepping import TABLEAUX, IntegratingFactorStepper
@@ -58,7 +59,7 @@ class PlanarGrid:
     @cached_property
     def mode_numbers(self) -> tuple[np.ndarray, np.ndarray]:
         nx, ny = self.grid
-        return (np.fft.fftfreq(nx, 1.0 / nx).astype(int)[:, None], np.fft.fftfreq(ny, 1.0 / ny).astype(int)[None, :])
+        return (fft_mode_numbers(nx)[:, None], fft_mode_numbers(ny)[None, :])
 
     @cached_property
     def wavenumbers(self) -> tuple[np.ndarray, np.ndarray, float]:
@@ -75,11 +76,11 @@ class PlanarGrid:
     def dealias_mask(self) -> np.ndarray:
         mx, my = self.mode_numbers
         nx, ny = self.grid
-        return (3 * np.abs(mx) < nx) & (3 * np.abs(my) < ny)
+        return kept_by_two_thirds(mx, nx) & kept_by_two_thirds(my, ny)
 
     @property
     def max_kept_wavenumbers(self) -> tuple[float, float, float]:
-        return tuple(2 * np.pi * ((n - 1) // 3) / L for n, L in zip(self.grid, self.lengths)) + (abs(self.kz),)
+        return tuple(2 * np.pi * max_kept_mode(n) / L for n, L in zip(self.grid, self.lengths)) + (abs(self.kz),)
 
 
 def planar_velocity(flow, grid: PlanarGrid, t: float, out: np.ndarray | None = None) -> np.ndarray:
