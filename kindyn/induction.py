@@ -33,7 +33,6 @@ from __future__ import annotations
 import numpy as np
 
 from kindyn.errors import FlowError
-from kindyn.flows.base import sample_velocity
 from kindyn.stepping.integrating_factor import BlockSupport
 
 SLAB_BYTES = 1 << 17  # one component of a cross-product slab (128 KiB): the slab's operands stay in cache
@@ -90,7 +89,6 @@ class InductionOperator:
                                  for a, k in enumerate((kx, ky, kz))) for block in self.support.blocks]
         self._ik_scaled_blocks = [tuple((c * scale).astype(complex_dtype) for c in coeffs)
                                   for coeffs in self._ik_blocks]
-        self._velocity, self._velocity_time = None, None  # full grid array, made only when asked for
         self._components, self._components_time = None, None  # u_x, u_y, u_z as the flow returns them
         self._last_stage_time = None  # for renovating flows, see _evaluation_time
         plane = box.shape[1] * box.shape[2] * np.dtype(real_dtype).itemsize
@@ -99,15 +97,6 @@ class InductionOperator:
         self._scratch_real = tuple(np.empty((width, *box.shape[1:]), real_dtype) for _ in range(3))
         self._scratch_hat = np.empty(max(self.support.sizes, default=1), complex_dtype)
         self.evaluations = 0
-
-    def velocity(self, t: float) -> np.ndarray:
-        """The flow on the grid at ``t``, shape ``(3, nx, ny, nz)`` (cached: a steady flow is sampled once)."""
-        if self._velocity is None:
-            self._velocity = np.empty(self.engine.real.shape, dtype=self.engine.real.dtype)
-        if self._velocity_time is None or (not self.flow.steady and t != self._velocity_time):
-            sample_velocity(self.flow, self.box, t, out=self._velocity)
-            self._velocity_time = t
-        return self._velocity
 
     def _evaluation_time(self, t: float) -> float:
         """Time at which to sample the flow for a stage at ``t``.

@@ -22,6 +22,7 @@ from threadpoolctl import threadpool_limits
 from kindyn.diagnostics.growth import GrowthEstimate, estimate_growth
 from kindyn.diagnostics.spectra import cutoff_ratio, energy, shell_spectrum
 from kindyn.errors import CaseError, NumericalError
+from kindyn.flows.base import sample_velocity
 from kindyn.fields import flow_field_hat, probe_indices, probe_vector, random_field_hat
 from kindyn.induction import InductionOperator
 from kindyn.stepping import TABLEAUX, IntegratingFactorStepper
@@ -181,7 +182,12 @@ def run_growth(case, progress=None, checkpoint=None) -> RunOutcome:
     return RunOutcome(estimate, record, b_hat, field, shell_spectrum(b_hat, box), ratio,
                       ratio > settings.resolution_threshold, step, t, timing, stop_reason,
                       wallclock.time() - started, bool(state),
-                      float(np.sqrt(np.mean(np.sum(solver.operator.velocity(0.0) ** 2, axis=0)))))
+                      _rms_speed(flow, box))
+
+
+def _rms_speed(flow, box) -> float:
+    """``u_rms`` of the flow on the grid at t = 0."""
+    return float(np.sqrt(np.mean(np.sum(sample_velocity(flow, box, 0.0) ** 2, axis=0))))
 
 
 def check_stability(case, timing: Timing) -> None:
