@@ -13,6 +13,7 @@ import sys
 
 from kindyn import __version__
 from kindyn.errors import KindynError, NumericalError
+from kindyn.kernels import configure_openmp_wait
 
 COMMANDS = ("run", "ensemble", "flow", "testfield", "sweep", "modes")
 
@@ -39,6 +40,7 @@ def build_parser(commands) -> argparse.ArgumentParser:
 
 
 def main(argv=None) -> int:
+    configure_openmp_wait()  # before any command starts pyfftw's or numba's OpenMP threads
     commands = _available_commands()
     args = build_parser(commands).parse_args(argv)
     try:

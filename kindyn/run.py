@@ -25,6 +25,7 @@ from kindyn.errors import CaseError, NumericalError
 from kindyn.flows.base import sample_velocity
 from kindyn.fields import flow_field_hat, probe_indices, probe_vector, random_field_hat
 from kindyn.induction import InductionOperator
+from kindyn.kernels import make_kernels
 from kindyn.stepping import TABLEAUX, IntegratingFactorStepper
 from kindyn.timestep import Timing, choose_timing
 from kindyn.transforms import TransformSettings, make_engine, physical_from_spectral
@@ -83,15 +84,16 @@ class Solver:
 
 def build_solver(box, flow, eta: float, transforms: TransformSettings, scheme: str = "rk4") -> Solver:
     engine = make_engine(box, transforms)
-    operator = InductionOperator(box, flow, engine, eta)
+    kernels = make_kernels(transforms.kernels, transforms.threads)
+    operator = InductionOperator(box, flow, engine, eta, kernels)
     stepper = IntegratingFactorStepper(operator, operator.decay_rates, TABLEAUX[scheme],
-                                       engine.spectral.shape, engine.spectral.dtype)
+                                       engine.spectral.shape, engine.spectral.dtype, kernels)
     return Solver(box, engine, operator, stepper)
 
 
 def transform_settings(case) -> TransformSettings:
     n = case.numerics
-    return TransformSettings(n.fft, n.threads, n.planning, n.precision)
+    return TransformSettings(n.fft, n.threads, n.planning, n.precision, n.kernels)
 
 
 def initial_field(case, solver) -> np.ndarray:

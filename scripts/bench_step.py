@@ -6,7 +6,8 @@ For each grid size and precision, in fresh subprocesses (so that peak memory is 
     batched 3-component forward transform), with the engine and plans kindyn's solver uses, called
     as the induction operator calls them;
 (b) one full step of kindyn's solver (:func:`kindyn.run.build_solver`, ABC flow A = B = C = 1,
-    k = 1, Rm = 12, CFL time step; ``IntegratingFactorStepper.step``);
+    k = 1, Rm = 12, CFL time step; ``IntegratingFactorStepper.step``), with the array kernels of
+    ``--kernels`` (default auto: numba when installed) and, beside it, (b') with the numpy kernels;
 (c) the same step written plainly with numpy.fft (:class:`PlainStep` below: irfftn/rfftn, cross
     product, curl, 2/3 mask, Lawson RK4 with exponential factors, allocating as plain code does).
 
@@ -16,7 +17,8 @@ best repeats, the largest difference between (b) and (c) after one step from the
 (relative to the field), and the peak resident memory (``ru_maxrss``) per grid point of a process
 that builds kindyn's solver (or the plain step) and takes two steps: in total, and above the same
 process after its imports. Ratios, not seconds: machines are shared and noisy. Targets (issue 2):
-at 64^3 on 2 cores, (b)/(a) <= 1.5 and (c)/(b) >= 3.
+at 64^3 on 2 cores, (b)/(a) <= 1.5 and (c)/(b) >= 3. Like the ``kindyn`` command, the benchmark sets
+a short OpenMP spin (:func:`kindyn.kernels.configure_openmp_wait`) unless the environment chooses.
 
     python scripts/bench_step.py                       # 32^3, 64^3, 128^3; double and single
     python scripts/bench_step.py --sizes 64 --threads 2 --repeats 11 --precision double
@@ -32,8 +34,11 @@ import resource
 import subprocess
 import sys
 import time
+from dataclasses import replace
 
 import numpy as np
+
+from kindyn.kernels import configure_openmp_wait
 
 TARGET_SIZE, TARGET_FFT_RATIO, TARGET_PLAIN_RATIO = 64, 1.5, 3.0
 RM = 12.0
@@ -49,6 +54,8 @@ def parse_args(argv=None):
     p.add_argument("--precision", choices=["double", "single", "both"], default="both")
     p.add_argument("--planning", choices=["estimate", "measure", "patient"], default="measure",
                    help="FFTW planning effort (kindyn's default: measure)")
+    p.add_argument("--kernels", choices=["auto", "numba", "numpy"], default="auto",
+                   help="array kernels of (b) (kindyn's default: auto)")
     p.add_argument("--json", action="store_true", help="also print all results as one JSON object")
     p.add_argument("--worker", choices=["time", "memory-kindyn", "memory-plain"], help=argparse.SUPPRESS)
     p.add_argument("--size", type=int, help=argparse.SUPPRESS)
@@ -127,7 +134,7 @@ class PlainStep:
         return full * b_hat + h / 6 * (full * k1 + 2 * half * (k2 + k3) + k4)
 
 
-def setup(size: int, precision: str, threads: int, planning: str):
+def setup(size: int, precision: str, threads: int, planning: str, kernels: str = "auto"):
     """Box, flow, eta and time step of the benchmark problem (ABC 1:1:1, k = 1, Rm = 12, CFL 1)."""
     from kindyn.box import Box
     from kindyn.flows.beltrami import ABCFlow
@@ -136,7 +143,7 @@ def setup(size: int, precision: str, threads: int, planning: str):
 
     box, flow = Box(grid=(size, size, size)), ABCFlow(1.0, 1.0, 1.0, 1.0)
     eta = flow.speed / (RM * flow.wavenumber)
-    settings = TransformSettings("fftw", threads, planning, precision)
+    settings = TransformSettings("fftw", threads, planning, precision, kernels)
     return box, flow, eta, cfl_time_step(flow, box, 1.0), settings, PRECISIONS[precision]
 
 
@@ -151,9 +158,10 @@ def time_worker(args) -> dict:
     from kindyn.run import build_solver
 
     box, flow, eta, h, settings, (real_dtype, complex_dtype) = setup(args.size, args.precision, args.threads,
-                                                                     args.planning)
+                                                                     args.planning, args.kernels)
     solver = build_solver(box, flow, eta, settings)
     engine, stepper = solver.engine, solver.stepper
+    numpy_stepper = build_solver(box, flow, eta, replace(settings, kernels="numpy")).stepper
     plain = PlainStep(box, sample_velocity(flow, box, 0.0), eta, real_dtype)
     b0 = random_band_field(box, complex_dtype)
 
@@ -173,16 +181,19 @@ def time_worker(args) -> dict:
             else:
                 engine.forward()
 
-    state = {"kindyn": b0.copy(), "plain": b0.copy()}
+    state = {"kindyn": b0.copy(), "numpy": b0.copy(), "plain": b0.copy()}
 
     def kindyn_step():
         stepper.step(0.0, state["kindyn"], h)
+
+    def numpy_kernels_step():
+        numpy_stepper.step(0.0, state["numpy"], h)
 
     def plain_step():
         state["plain"] = plain.step(state["plain"], h)
 
     engine.spectral[...] = b0
-    jobs = {"a": ffts, "b": kindyn_step, "c": plain_step}
+    jobs = {"a": ffts, "b": kindyn_step, "b_numpy": numpy_kernels_step, "c": plain_step}
     wall, cpu = {key: [] for key in jobs}, {key: [] for key in jobs}
     for r in range(args.warmup + args.repeats):
         for key, job in jobs.items():
@@ -195,7 +206,9 @@ def time_worker(args) -> dict:
     best = {key: float(np.min(v)) for key, v in wall.items()}
     c = {key: float(np.median(v)) for key, v in cpu.items()}
     return {"size": args.size, "precision": args.precision, "threads": args.threads, "dt": h,
-            "a": w["a"], "b": w["b"], "c": w["c"], "b_over_a": w["b"] / w["a"], "c_over_b": w["c"] / w["b"],
+            "kernels": stepper.kernels.name, "kernel_threads": stepper.kernels.threads,
+            "a": w["a"], "b": w["b"], "b_numpy": w["b_numpy"], "c": w["c"], "b_numpy_over_a": w["b_numpy"] / w["a"],
+            "b_over_a": w["b"] / w["a"], "c_over_b": w["c"] / w["b"],
             "best_b_over_a": best["b"] / best["a"], "best_c_over_b": best["c"] / best["b"],
             "cpu_b_over_a": c["b"] / c["a"], "cpu_c_over_b": c["c"] / c["b"], "difference": difference,
             "load": os.getloadavg()[0]}
@@ -205,12 +218,15 @@ def memory_worker(args) -> dict:
     # import everything first, so that "above" counts the field and the solver only
     for module in ("kindyn.box", "kindyn.flows.beltrami", "kindyn.timestep", "kindyn.transforms.fftw"):
         importlib.import_module(module)
+    from kindyn.kernels import numba_available  # imports numba when installed
+
+    numba_available()
     from kindyn.flows.base import sample_velocity
     from kindyn.run import build_solver
 
     before = peak_rss_bytes()
     box, flow, eta, h, settings, (real_dtype, complex_dtype) = setup(args.size, args.precision, args.threads,
-                                                                     args.planning)
+                                                                     args.planning, args.kernels)
     b = random_band_field(box, complex_dtype)
     if args.worker == "memory-kindyn":
         stepper = build_solver(box, flow, eta, settings).stepper
@@ -229,7 +245,7 @@ def memory_worker(args) -> dict:
 def run_worker(args, kind: str, size: int, precision: str) -> dict:
     command = [sys.executable, os.path.abspath(__file__), "--worker", kind, "--size", str(size),
                "--precision", precision, "--threads", str(args.threads), "--repeats", str(args.repeats),
-               "--warmup", str(args.warmup), "--planning", args.planning]
+               "--warmup", str(args.warmup), "--planning", args.planning, "--kernels", args.kernels]
     done = subprocess.run(command, capture_output=True, text=True)
     if done.returncode != 0:
         raise SystemExit(f"bench_step: worker {kind} at {size}^3 ({precision}) failed:\n{done.stderr.strip()}")
@@ -238,15 +254,16 @@ def run_worker(args, kind: str, size: int, precision: str) -> dict:
 
 def table(rows) -> str:
     head = (f"{'grid':>6} {'precision':>9} {'(a) FFTs':>9} {'(b) step':>9} {'(c) numpy':>9} {'(b)/(a)':>8} "
-            f"{'(c)/(b)':>8} {'(b)/(a)':>8} {'(c)/(b)':>8} {'|b-c|/|b|':>9} {'kindyn B/pt':>13} {'plain B/pt':>13}")
+            f"{'(c)/(b)':>8} {'(b)/(a)':>8} {'(c)/(b)':>8} {'(b`)/(a)':>8} {'|b-c|/|b|':>9} {'kindyn B/pt':>13} "
+            f"{'plain B/pt':>13}")
     units = (f"{'':>6} {'':>9} {'ms':>9} {'ms':>9} {'ms':>9} {'median':>8} {'median':>8} {'best':>8} {'best':>8} "
-             f"{'':>9} {'peak (above)':>13} {'peak (above)':>13}")
+             f"{'median':>8} {'':>9} {'peak (above)':>13} {'peak (above)':>13}")
     lines = [head, units]
     for r in rows:
         lines.append(f"{r['size']:>4}^3 {r['precision']:>9} "
                      f"{1e3 * r['a']:9.2f} {1e3 * r['b']:9.2f} {1e3 * r['c']:9.2f} {r['b_over_a']:8.2f} "
                      f"{r['c_over_b']:8.2f} {r['best_b_over_a']:8.2f} {r['best_c_over_b']:8.2f} "
-                     f"{r['difference']:9.1e} {r['kindyn_peak']:6.0f} ({r['kindyn_above']:4.0f}) "
+                     f"{r['b_numpy_over_a']:8.2f} {r['difference']:9.1e} {r['kindyn_peak']:6.0f} ({r['kindyn_above']:4.0f}) "
                      f"{r['plain_peak']:6.0f} ({r['plain_above']:4.0f})")
     return "\n".join(lines)
 
@@ -266,6 +283,7 @@ def verdict(rows, threads: int) -> str:
 
 def main(argv=None) -> int:
     args = parse_args(argv)
+    configure_openmp_wait()  # as the kindyn command does; workers inherit it
     if args.worker:
         worker = time_worker if args.worker == "time" else memory_worker
         print(json.dumps(worker(args)))
@@ -273,7 +291,9 @@ def main(argv=None) -> int:
     precisions = ["double", "single"] if args.precision == "both" else [args.precision]
     print(f"kindyn step benchmark: ABC flow A = B = C = 1, k = 1, Rm = {RM:g}, classical RK4, CFL 1; "
           f"fftw engine, {args.threads} thread(s), planning {args.planning}; medians of {args.repeats} repeats "
-          f"after {args.warmup} warm-up; {os.cpu_count()} cores, load {os.getloadavg()[0]:.1f}", flush=True)
+          f"after {args.warmup} warm-up; {os.cpu_count()} cores, load {os.getloadavg()[0]:.1f}; OpenMP wait: "
+          f"{', '.join(f'{k}={os.environ[k]}' for k in ('OMP_WAIT_POLICY', 'GOMP_SPINCOUNT') if k in os.environ)}",
+          flush=True)
     rows = []
     for precision in precisions:
         for size in args.sizes:
@@ -284,8 +304,10 @@ def main(argv=None) -> int:
             rows.append(row)
             print(f"  done {size}^3 {precision}", file=sys.stderr, flush=True)
     print(table(rows))
+    kernels = sorted({f"{r['kernels']} on {r['kernel_threads']} thread(s)" for r in rows})
     print(f"times: medians of wall-clock time; ratios of the medians and of the best (shortest) repeats. FFTW "
-          f"uses {args.threads} thread(s); kindyn's array arithmetic and numpy.fft in (c) run on one.")
+          f"uses {args.threads} thread(s); kindyn's array kernels in (b): {', '.join(kernels)}; (b') the same step "
+          f"with the numpy kernels (one thread); numpy.fft in (c) runs on one.")
     print("memory: peak = ru_maxrss of a fresh process per grid point (bytes); above = minus the same process "
           "after imports, before the field and solver exist")
     load = os.getloadavg()[0]

@@ -37,6 +37,7 @@ from kindyn.case.schema import RUN
 from kindyn.diagnostics.spectra import energy
 from kindyn.fields import flow_field_hat, random_field_hat
 from kindyn.flows import ABCFlow, GallowayProctorFlow
+from kindyn.kernels import numba_available
 from kindyn.run import build_solver, run_growth
 from kindyn.stepping import TABLEAUX
 from kindyn.transforms import ENGINES, TransformSettings, make_engine, physical_from_spectral, spectral_from_physical
@@ -71,8 +72,14 @@ class UniformFlow:
         pass
 
 
-def settings(engine: str = "fftw", precision: str = "double") -> TransformSettings:
-    return TransformSettings(engine=engine, threads=1, planning="estimate", precision=precision)
+def settings(engine: str = "fftw", precision: str = "double", kernels: str = "auto") -> TransformSettings:
+    threads = 2 if kernels == "numba" else 1  # the compiled kernels also on more than one thread
+    return TransformSettings(engine=engine, threads=threads, planning="estimate", precision=precision,
+                             kernels=kernels)
+
+
+# the array-kernel sets of kindyn.kernels: numpy always, numba where installed
+KERNEL_SETS = ["numpy"] + (["numba"] if numba_available() else [])
 
 
 def advance(solver, b_hat, h, steps, t0=0.0):
@@ -130,12 +137,13 @@ def test_transform_normalisation_is_fourier_coefficients(engine_name, lengths, g
 
 
 # ---------------------------------------------------------------------------------------- u = 0
+@pytest.mark.parametrize("kernels", KERNEL_SETS)
 @pytest.mark.parametrize("engine_name", ENGINES)
 @pytest.mark.parametrize("lengths,grid", BOXES, ids=BOX_IDS)
-def test_no_flow_every_mode_decays_exactly(engine_name, lengths, grid, random_field):
+def test_no_flow_every_mode_decays_exactly(engine_name, lengths, grid, random_field, kernels):
     # exact: b(k, t) = b(k, 0) exp(-eta |k|^2 t); rtol 1e-13 (round-off of the exponentials)
     box, eta, h, steps = Box(lengths, grid), 0.37, 0.0123, 57
-    solver = build_solver(box, UniformFlow(), eta, settings(engine_name))
+    solver = build_solver(box, UniformFlow(), eta, settings(engine_name, kernels=kernels))
     b0 = random_field(box, solver.engine, seed=11)
     b = advance(solver, b0.copy(), h, steps)
     expected = b0 * np.exp(-eta * box.k_squared * h * steps)
@@ -146,11 +154,12 @@ def test_no_flow_every_mode_decays_exactly(engine_name, lengths, grid, random_fi
 
 
 # ------------------------------------------------------------------------------------ uniform u
+@pytest.mark.parametrize("kernels", KERNEL_SETS)
 @pytest.mark.parametrize("scheme", sorted(TABLEAUX))
 @pytest.mark.parametrize("lengths,grid", BOXES, ids=BOX_IDS)
-def test_uniform_flow_rotates_phase_times_decay(scheme, lengths, grid, random_field):
+def test_uniform_flow_rotates_phase_times_decay(scheme, lengths, grid, random_field, kernels):
     box, eta, U, h, steps = Box(lengths, grid), 0.05, (0.3, -0.7, 0.45), 0.01, 100
-    solver = build_solver(box, UniformFlow(U), eta, settings(), scheme)
+    solver = build_solver(box, UniformFlow(U), eta, settings(kernels=kernels), scheme)
     b0 = random_field(box, solver.engine, seed=5)
     b = advance(solver, b0.copy(), h, steps)
     kx, ky, kz = box.wavenumbers
@@ -177,14 +186,15 @@ ABC_CASES = [  # (A, B, C, k, lengths, grid)
 ]
 
 
+@pytest.mark.parametrize("kernels", KERNEL_SETS)
 @pytest.mark.parametrize("engine_name", ENGINES)
 @pytest.mark.parametrize("A,B,C,k,lengths,grid", ABC_CASES)
-def test_abc_field_equal_to_flow_decays_exactly(engine_name, A, B, C, k, lengths, grid):
+def test_abc_field_equal_to_flow_decays_exactly(engine_name, A, B, C, k, lengths, grid, kernels):
     # derived: curl(u x u) = 0 and Lap u = -k^2 u  =>  B(t) = u exp(-eta k^2 t); rtol 1e-12 after
     # 200 steps at CFL-size steps (the nonlinear term must vanish to round-off at every stage)
     box, eta = Box(lengths, grid), 0.1
     flow = ABCFlow(A, B, C, k)
-    solver = build_solver(box, flow, eta, settings(engine_name))
+    solver = build_solver(box, flow, eta, settings(engine_name, kernels=kernels))
     b0 = flow_field_hat(box, solver.engine, flow)
     h, steps = 0.05, 200
     b = advance(solver, b0.copy(), h, steps)

@@ -81,6 +81,8 @@ THIRD_PARTY = {
     "matplotlib": lambda f: f.startswith("kindyn/output/figures") and f.endswith(".py"),
     "dask": lambda f: f.startswith("kindyn/sweep/") or f == "kindyn/sweep.py",
     "distributed": lambda f: f.startswith("kindyn/sweep/") or f == "kindyn/sweep.py",
+    # the optional compiled array kernels
+    "numba": lambda f: f == "kindyn/kernels/numba_kernels.py",
     "mpi4py": lambda f: f.startswith("kindyn/transforms/"),
     "mpi4py_fft": lambda f: f.startswith("kindyn/transforms/"),
 }

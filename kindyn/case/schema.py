@@ -13,6 +13,8 @@ import re
 from dataclasses import dataclass
 from typing import Callable
 
+from kindyn.kernels import KERNEL_SETS, numba_available
+
 REQUIRED = object()
 
 _PI_PATTERN = re.compile(r"^\s*(?:(?P<num>[0-9.eE+-]+)\s*\*?\s*)?pi\s*(?:/\s*(?P<den>[0-9.eE+-]+))?\s*$")
@@ -98,6 +100,14 @@ def choice(*options: str) -> Callable:
     return convert
 
 
+def kernel_set(value):
+    """An array-kernel set of :mod:`kindyn.kernels`; ``"numba"`` only where numba can be imported."""
+    value = choice(*KERNEL_SETS)(value)
+    if value == "numba" and not numba_available():
+        raise ValueError('"auto" or "numpy": numba is not installed here (pip install "kindyn[fast]")')
+    return value
+
+
 def list_of(convert_one: Callable, what: str, length: int | None = None) -> Callable:
     """A TOML list converted item by item: ``length`` items, or any non-empty list when ``None``."""
     count = {2: "two", 3: "three"}.get(length, str(length))
@@ -157,9 +167,12 @@ RUN = {
 
 NUMERICS = {
     "fft": Key(choice("fftw", "scipy"), "fftw", "transform engine"),
-    "threads": Key(positive_integer, 1, "threads per transform"),
+    "threads": Key(positive_integer, 1, "threads of the FFTs and of the compiled array kernels"),
     "planning": Key(choice("estimate", "measure", "patient"), "measure", "FFTW planning effort"),
     "precision": Key(choice("double", "single"), "double", "floating-point precision of the fields"),
+    "kernels": Key(kernel_set, "auto",
+                   "array kernels of the step beside the FFTs: numba (fused, on `threads` threads; the "
+                   "`fast` extra), numpy, or auto (numba when installed)"),
 }
 
 OUTPUT = {

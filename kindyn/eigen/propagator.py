@@ -96,6 +96,7 @@ def planar_propagator(grid: PlanarGrid, flow, eta: float, dt: float, steps: int,
     threads and planning; the precision is always double.
     """
     settings = transforms or TransformSettings()
-    solver = build_planar_solver(grid, flow, eta, scheme, settings.threads, settings.engine, settings.planning)
+    solver = build_planar_solver(grid, flow, eta, scheme, settings.threads, settings.engine, settings.planning,
+                                 settings.kernels)
     return Propagator(solver.stepper, PlanarBasis(grid), solver.engine.spectral.shape, dt, steps, start_time,
                       solver)

@@ -32,7 +32,6 @@ import numpy as np
 
 from kindyn.stepping.tableaux import Tableau
 
-CHUNK = 4096  # entries of the last axis combined at a time on packed arrays (operands stay in cache)
 
 
 class BlockSupport:
@@ -58,6 +57,24 @@ class BlockSupport:
         self.sizes = tuple(int(np.prod(s)) for s in shapes)
         self.offsets = tuple(int(o) for o in np.cumsum((0,) + self.sizes[:-1]))
         self.size = int(sum(self.sizes))
+        self.line_start, self.line_length = self._line_table()
+
+    def _line_table(self):
+        """When every block is a set of whole lines along the last axis, all starting at index 0 and
+        of one length ``L``: ``(line_start, L)`` with ``line_start[i, ...]`` the packed offset of the
+        line at the leading trailing indices (``-1``: not in the support). ``(None, 0)`` otherwise.
+        Line-wise array kernels use it to visit the support in one pass."""
+        lengths = {shape[-1] for shape in self.shapes}
+        if not self.blocks or len(lengths) != 1 or len(self.trailing_shape) < 2:
+            return None, 0
+        line_start = np.full(self.trailing_shape[:-1], -1, dtype=np.int64)
+        for block, shape, offset in zip(self.blocks, self.shapes, self.offsets):
+            ranges = [s.indices(n) for s, n in zip(block, self.trailing_shape)]
+            if ranges[-1][0] != 0 or any(step != 1 for _, _, step in ranges):
+                return None, 0
+            lines = offset + shape[-1] * np.arange(int(np.prod(shape[:-1]))).reshape(shape[:-1])
+            line_start[tuple(slice(a, b) for a, b, _ in ranges[:-1])] = lines
+        return line_start, lengths.pop()
 
     def full_views(self, full: np.ndarray) -> list[np.ndarray]:
         """Views of ``full`` (``(..., *trailing)``) on each block."""
@@ -83,43 +100,48 @@ class BlockSupport:
 
 
 class IntegratingFactorStepper:
-    """Advance ``y`` (complex array of ``shape``, modified in place) by one step of size ``h``."""
+    """Advance ``y`` (complex array of ``shape``, modified in place) by one step of size ``h``.
 
-    def __init__(self, rhs, decay_rates: np.ndarray, tableau: Tableau, shape, dtype):
-        self.rhs, self.rates, self.tableau = rhs, np.asarray(decay_rates), tableau
+    The stage sums run on work arrays ``(shape[0], size)``: the packed band values, or ``y`` itself
+    seen as two-dimensional (then ``y`` must be C-contiguous). ``kernels`` forms them: an object with
+    ``prepare_couplings``, ``stage_sums``, ``gather`` and ``finish_step`` (the array-kernel sets of
+    :mod:`kindyn.kernels`).
+    """
+
+    def __init__(self, rhs, decay_rates: np.ndarray, tableau: Tableau, shape, dtype, kernels):
+        self.rhs, self.rates, self.tableau, self.kernels = rhs, np.asarray(decay_rates), tableau, kernels
+        self.shape = tuple(shape)
         self.support = getattr(rhs, "support", None) if hasattr(rhs, "packed") else None
-        work_shape = tuple(shape) if self.support is None else (shape[0], self.support.size)
-        self._rates_work = self.rates if self.support is None else self.support.gather(
-            self.rates, np.empty(self.support.size, self.rates.dtype))
+        if self.support is None:
+            size = int(np.prod(self.shape[1:]))
+            self._rates_work = np.ascontiguousarray(np.broadcast_to(self.rates, self.shape[1:])).reshape(size)
+        else:
+            size = self.support.size
+            self._rates_work = self.support.gather(self.rates, np.empty(size, self.rates.dtype))
+        work_shape = (self.shape[0], size)
         self._slot_of, slots = _stage_slots(tableau)
-        self._stages = [np.empty(work_shape, dtype) for _ in range(slots)]
+        self._stages = np.empty((slots, *work_shape), dtype)  # K_i in slot _slot_of[i]
         self._stage_value = np.empty(work_shape, dtype)
         self._sum = np.empty(work_shape, dtype)
         self._packed_y = None if self.support is None else np.empty(work_shape, dtype)
-        if self.support is None:  # whole arrays at once (factors broadcast against them)
-            self._chunks = [((), np.empty(work_shape, dtype))]
-        else:  # packed arrays (ncomp, size): slices of the last axis, one small scratch
-            scratch = np.empty((work_shape[0], min(CHUNK, work_shape[1])), dtype)
-            self._chunks = [((Ellipsis, slice(a, min(a + CHUNK, work_shape[1]))),
-                             scratch[:, : min(CHUNK, work_shape[1] - a)]) for a in range(0, work_shape[1], CHUNK)]
         self._first_final = next((i for i, bi in enumerate(tableau.b) if bi != 0.0), None)
         self._h = None
 
     def _weights(self, h: float):
         """Per step size: stage factors ``E(c_i h)``, couplings ``h a_ij E((c_i - c_j) h)``, weights
-        ``h b_i E((1 - c_i) h)`` (on the work arrays; a plain float where the exponential is 1) and
-        ``E(h)`` on the full array."""
+        ``h b_i E((1 - c_i) h)`` (real arrays over the work axis) and ``E(h)`` on the full array."""
         if h != self._h:
             tab, rates = self.tableau, self._rates_work
 
             def factor(s: float, weight: float = 1.0):
-                if s == 0.0:
-                    return weight
                 return (weight * np.exp(-rates.astype(np.float64) * (s * h))).astype(rates.dtype)
 
             self._stage_factor = [None if ci == 0.0 else factor(ci) for ci in tab.c]
-            self._couplings = [[(j, factor(ci - tab.c[j], h * aij)) for j, aij in enumerate(tab.a[i]) if aij != 0.0]
-                               for i, ci in enumerate(tab.c)]
+            self._couplings = [self.kernels.prepare_couplings(
+                [(self._slot_of[j], factor(ci - tab.c[j], h * aij)) for j, aij in enumerate(tab.a[i]) if aij != 0.0],
+                rates.dtype, rates.size) for i, ci in enumerate(tab.c)]
+            self._assembles = [self._stage_factor[i] is not None or any(a != 0.0 for a in tab.a[i])
+                               for i in range(tab.stages)]
             self._final = [None if bi == 0.0 else factor(1.0 - ci, h * bi) for ci, bi in zip(tab.c, tab.b)]
             self._decay = np.exp(-self.rates.astype(np.float64) * h).astype(self.rates.dtype)
             self._h = h
@@ -127,61 +149,39 @@ class IntegratingFactorStepper:
     def step(self, t: float, y: np.ndarray, h: float) -> None:
         tab = self.tableau
         self._weights(h)
-        packed = self.support is not None
-        work = self.support.gather(y, self._packed_y) if packed else y
-        evaluate = self.rhs.packed if packed else self.rhs
+        if self.support is not None:
+            work, evaluate = self.kernels.gather(self.support, y, self._packed_y), self.rhs.packed
+        else:
+            if not y.flags.c_contiguous:
+                raise ValueError("the unpacked stepper needs a C-contiguous state array")
+            shape, rhs = self.shape, self.rhs
+            work = y.reshape(shape[0], -1)
+
+            def evaluate(s, value, out):
+                rhs(s, value.reshape(shape), out.reshape(shape))
         stage = self._combine(None, 0, work)
         for i in range(tab.stages):
-            k = self._stages[self._slot_of[i]]
-            evaluate(t + tab.c[i] * h, stage, k)
+            evaluate(t + tab.c[i] * h, stage, self._stages[self._slot_of[i]])
             stage = self._combine(i, i + 1 if i + 1 < tab.stages else None, work)
-        y *= self._decay  # everywhere: exact outside the support
-        if self._first_final is not None:
-            if packed:
-                self.support.add_to(self._sum, y)
-            else:
-                y += self._sum
+        if self._first_final is None:  # no stage contributes: pure decay
+            y *= self._decay
+        else:  # y = E(h) y + sum everywhere (exact outside the support, where the sum vanishes)
+            self.kernels.finish_step(y, self._decay, self._sum, self.support)
 
     def _combine(self, done: int | None, following: int | None, work: np.ndarray):
         """After ``K_done``: ``sum += h b_done E((1 - c_done) h) K_done``; then assemble the stage
-        value ``Y_following`` and return it (``work`` itself for a first stage ``Y = y_n``).
-
-        Chunk by chunk along the last axis of the work arrays, so that the products stay in cache
-        between the multiply and the add (one pass over memory per operand instead of three).
-        """
+        value ``Y_following`` and return it (``work`` itself for a first stage ``Y = y_n``). One
+        kernel call does both, in one pass over the arrays."""
         final = None if done is None else self._final[done]
-        assemble = following is not None and (self._stage_factor[following] is not None
-                                               or self._couplings[following])
+        assemble = following is not None and self._assembles[following]
         if final is None and not assemble:
             return work if following is not None else None
-        k = None if done is None else self._stages[self._slot_of[done]]
-        total, Y = self._sum, self._stage_value
-        first = done == self._first_final
-        e = None if not assemble else self._stage_factor[following]
-        couplings = [] if not assemble else [(self._stages[self._slot_of[j]], w) for j, w in self._couplings[following]]
-
-        for chunk, tmp in self._chunks:
-            if final is not None:
-                if first:
-                    np.multiply(k[chunk], _part(final, chunk), out=total[chunk])
-                else:
-                    np.multiply(k[chunk], _part(final, chunk), out=tmp)
-                    total[chunk] += tmp
-            if assemble:
-                y_chunk = Y[chunk]
-                if e is None:
-                    np.copyto(y_chunk, work[chunk])
-                else:
-                    np.multiply(work[chunk], e[chunk], out=y_chunk)
-                for kj, weight in couplings:
-                    np.multiply(kj[chunk], _part(weight, chunk), out=tmp)
-                    y_chunk += tmp
-        return Y if assemble else work
-
-
-def _part(factor, chunk):
-    """A factor on a chunk: plain numbers apply everywhere."""
-    return factor if np.ndim(factor) == 0 else factor[chunk]
+        k = None if final is None else self._stages[self._slot_of[done]]
+        self.kernels.stage_sums(self._sum, k, final, done == self._first_final,
+                                self._stage_value if assemble else None, work,
+                                self._stage_factor[following] if assemble else None, self._stages,
+                                self._couplings[following] if assemble else None)
+        return self._stage_value if assemble else work
 
 
 def _stage_slots(tableau: Tableau) -> tuple[list[int], int]:

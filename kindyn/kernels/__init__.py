@@ -1,0 +1,89 @@
+"""Array kernels of the time step's hot path, outside the FFTs, in two interchangeable sets.
+
+A pseudo-spectral step spends its time in the FFTs and in a few passes over whole arrays: the
+cross product ``u x B`` on the grid, the spectral curl, scattering the stepped band values into the
+transform buffer, and the Runge–Kutta stage sums. With plain numpy each of these is several passes
+over memory on one thread; fused, multi-threaded loops make them a small fraction of the FFT time.
+
+* ``"numpy"`` (:mod:`kindyn.kernels.numpy_kernels`): always available; blocked so that operands stay
+  in cache, one thread.
+* ``"numba"`` (:mod:`kindyn.kernels.numba_kernels`): the same operations as fused loops compiled by
+  numba, on ``threads`` threads. Optional (``pip install "kindyn[fast]"``); compiled on first use and
+  cached on disk.
+
+``"auto"`` takes numba when it can be imported, numpy otherwise.
+
+OpenMP waiting. pyfftw's FFTW threads and numba's parallel loops are two OpenMP pools that take
+turns on the same cores. By default a GNU OpenMP worker spins for a long while after its loop, so
+each pool's idle workers take the cores the other pool needs next (on two cores the 64^3 step ran
+four times slower than with numpy alone). A short spin (``GOMP_SPINCOUNT=10000``, some
+microseconds) or sleeping at once (``OMP_WAIT_POLICY=passive``) avoids that; both must be set
+before the runtimes start, i.e. in the environment of the process. The ``kindyn`` command does it
+(:func:`configure_openmp_wait`); elsewhere the numba kernels run on one thread unless the
+environment sets one of the two (:func:`openmp_waits_briefly`). Both sets compute the same
+arithmetic in the same order (no fused multiply-add, no fast-math), so results agree to round-off
+(tests compare them). Layouts, shared by both sets:
+
+* physical fields ``(3, nx, ny, nz)``; velocity components 3-D arrays that broadcast to ``(nx, ny, nz)``;
+* spectral fields ``(3, nx, ny, nz//2+1)``;
+* band values packed as a :class:`~kindyn.stepping.integrating_factor.BlockSupport` (``support``)
+  says: its blocks one after the other. The 2/3-rule band is made of whole lines along ``z`` from
+  ``m_z = 0``, so the support also has a line table: line ``(i, j)`` starts at
+  ``support.line_start[i, j]`` of the packed axis (``-1``: outside the band) and is
+  ``support.line_length`` long. The numba set visits the band line by line; the numpy set block by block.
+"""
+
+from __future__ import annotations
+
+import os
+
+KERNEL_SETS = ("auto", "numba", "numpy")
+
+
+class KernelsUnavailable(RuntimeError):
+    """The kernel set asked for cannot be used here (e.g. numba is not installed)."""
+
+
+SHORT_SPIN = "10000"  # GOMP_SPINCOUNT: busy-wait iterations before an idle OpenMP worker sleeps
+
+
+def configure_openmp_wait(environ=None) -> None:
+    """Entry points only, before pyfftw or numba start OpenMP: a short spin unless the user chose."""
+    environ = os.environ if environ is None else environ
+    if "OMP_WAIT_POLICY" not in environ and "GOMP_SPINCOUNT" not in environ:
+        environ["GOMP_SPINCOUNT"] = SHORT_SPIN
+
+
+def openmp_waits_briefly(environ=None) -> bool:
+    """Whether idle OpenMP workers leave the cores soon (short spin or passive waiting)."""
+    environ = os.environ if environ is None else environ
+    policy = environ.get("OMP_WAIT_POLICY", "").strip().lower()
+    if policy == "active":
+        return False
+    return policy == "passive" or "GOMP_SPINCOUNT" in environ
+
+
+def numba_available() -> bool:
+    """Whether the numba kernels can be loaded (numba installed and importable with this numpy)."""
+    try:
+        import kindyn.kernels.numba_kernels  # noqa: F401
+    except ImportError:
+        return False
+    return True
+
+
+def make_kernels(choice: str = "auto", threads: int = 1):
+    """The kernel set named ``choice`` (one of :data:`KERNEL_SETS`) running on ``threads`` threads
+    (the numba set on one thread unless :func:`openmp_waits_briefly`)."""
+    if choice not in KERNEL_SETS:
+        raise ValueError(f"unknown kernel set {choice!r}; expected one of {KERNEL_SETS}")
+    if choice == "numba" or (choice == "auto" and numba_available()):
+        try:
+            from kindyn.kernels.numba_kernels import NumbaKernels
+        except ImportError as error:
+            raise KernelsUnavailable(f"the numba kernels need numba ({error}); install it with "
+                                     f"pip install \"kindyn[fast]\" or choose kernels = \"numpy\"") from None
+        return NumbaKernels(threads if openmp_waits_briefly() else 1)
+    from kindyn.kernels.numpy_kernels import NumpyKernels
+
+    return NumpyKernels()

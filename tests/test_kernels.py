@@ -1,0 +1,206 @@
+"""The array kernels of the step (kindyn/kernels) against plain numpy, and their selection.
+
+References (outside kindyn): each kernel is checked against the same operation written directly
+with numpy's array arithmetic and fancy indexing (``np.cross``-style component formulas, boolean
+masks of the 2/3-rule band). The two kernel sets compute the same arithmetic in the same order, so
+they agree to the last bit on the formulas checked here (the tolerance allows one rounding).
+Physical checks of both sets (exact decay, phase rotation, exact ABC decay) are parametrised in
+tests/test_exact_solutions.py. Grids: even, odd and non-cubic; double and single precision.
+"""
+
+from __future__ import annotations
+
+import math
+
+import numpy as np
+import pytest
+
+from kindyn.box import Box
+from kindyn.case import load_case
+from kindyn.errors import CaseError
+from kindyn.flows import ABCFlow, GallowayProctorFlow
+from kindyn.induction import band_blocks
+from kindyn.kernels import (KERNEL_SETS, configure_openmp_wait, make_kernels, numba_available,
+                            openmp_waits_briefly)
+from kindyn.run import build_solver
+from kindyn.stepping.integrating_factor import BlockSupport
+from kindyn.transforms import TransformSettings
+
+GRIDS = [(8, 8, 8), (9, 9, 9), (12, 10, 7), (7, 12, 10)]
+PRECISIONS = {"double": (np.float64, np.complex128, 1e-15), "single": (np.float32, np.complex64, 1e-6)}
+SETS = ["numpy"] + (["numba"] if numba_available() else [])
+needs_numba = pytest.mark.skipif(not numba_available(), reason="numba is not installed")
+
+
+def kernel_sets():
+    return [make_kernels(name, threads=2) for name in SETS]
+
+
+def band(box):
+    support = BlockSupport(band_blocks(box), box.spectral_shape)
+    mask = np.broadcast_to(box.dealias_mask, box.spectral_shape)
+    return support, mask
+
+
+def random_complex(rng, shape, dtype):
+    return (rng.standard_normal(shape) + 1j * rng.standard_normal(shape)).astype(dtype)
+
+
+def close(a, b, tol):
+    scale = max(float(np.max(np.abs(b))), 1e-300)
+    return float(np.max(np.abs(a - b))) <= tol * scale
+
+
+@pytest.mark.parametrize("grid", GRIDS)
+def test_band_blocks_are_the_two_thirds_mask_and_the_line_table_indexes_them(grid):
+    box = Box(grid=grid)
+    support, mask = band(box)
+    covered = np.zeros(box.spectral_shape, bool)
+    for view in support.full_views(covered[None]):
+        assert not view.any()  # disjoint
+        view[...] = True
+    np.testing.assert_array_equal(covered, mask)
+    # packed order of the line table = packed order of the blocks
+    full = np.arange(np.prod(box.spectral_shape)).reshape(box.spectral_shape)[None].astype(float)
+    packed = support.gather(full, np.empty((1, support.size)))
+    lines = support.line_start
+    for i, j in zip(*np.nonzero(lines >= 0)):
+        s = lines[i, j]
+        np.testing.assert_array_equal(packed[0, s:s + support.line_length], full[0, i, j, :support.line_length])
+    assert (lines >= 0).sum() * support.line_length == support.size
+
+
+@pytest.mark.parametrize("precision", sorted(PRECISIONS))
+@pytest.mark.parametrize("grid", GRIDS)
+def test_cross_product_matches_numpy_formula(grid, precision, rng):
+    real, _, tol = PRECISIONS[precision]
+    box = Box(grid=grid)
+    x, y, z = box.coordinates
+    u = tuple(np.asarray(c, real) for c in ABCFlow(1.0, 0.7, 0.4).velocity(x, y, z, 0.0))
+    b = rng.standard_normal((3, *box.shape)).astype(real)
+    ub = [np.broadcast_to(c, box.shape) for c in u]
+    expected = np.stack([ub[1] * b[2] - ub[2] * b[1], ub[2] * b[0] - ub[0] * b[2], ub[0] * b[1] - ub[1] * b[0]])
+    for kernels in kernel_sets():
+        out = b.copy()
+        kernels.cross_in_place(u, out)
+        assert close(out, expected, tol), kernels.name
+
+
+@pytest.mark.parametrize("precision", sorted(PRECISIONS))
+@pytest.mark.parametrize("grid", GRIDS)
+def test_band_scatter_gather_and_curl_match_masked_numpy(grid, precision, rng):
+    real, complex_, tol = PRECISIONS[precision]
+    box = Box(grid=grid)
+    support, mask = band(box)
+    values = random_complex(rng, (3, support.size), complex_)
+    reference_full = np.zeros((3, *box.spectral_shape), complex_)
+    for view, v in zip(support.full_views(reference_full), support.packed_views(values)):
+        view[...] = v
+    e_hat = random_complex(rng, (3, *box.spectral_shape), complex_)
+    k = [np.broadcast_to(c, box.spectral_shape) for c in box.wavenumbers]
+    curl = np.stack([1j * (k[1] * e_hat[2] - k[2] * e_hat[1]), 1j * (k[2] * e_hat[0] - k[0] * e_hat[2]),
+                     1j * (k[0] * e_hat[1] - k[1] * e_hat[0])]) * mask
+    wavenumbers = tuple(np.ravel(c).astype(real) for c in box.wavenumbers)
+    for kernels in kernel_sets():
+        full = random_complex(rng, (3, *box.spectral_shape), complex_)  # garbage everywhere first
+        kernels.spectral_from_band(support, values, full)
+        np.testing.assert_array_equal(full, reference_full)
+        packed = kernels.gather(support, full, np.empty_like(values))
+        np.testing.assert_array_equal(packed, values)
+        out = np.empty_like(values)
+        kernels.curl_to_band(support, e_hat, wavenumbers, out)
+        back = np.zeros_like(e_hat)
+        support.add_to(out, back)
+        assert close(back, curl.astype(complex_), tol), kernels.name
+
+
+@pytest.mark.parametrize("grid", GRIDS[:3])
+def test_stage_sums_and_step_finish_match_numpy_formulas(grid, rng):
+    box = Box(grid=grid)
+    support, _ = band(box)
+    size = support.size
+    stages = random_complex(rng, (2, 3, size), np.complex128)
+    k, start = random_complex(rng, (3, size), np.complex128), random_complex(rng, (3, size), np.complex128)
+    final, factor, w0, w1 = (rng.random(size) for _ in range(4))
+    total0 = random_complex(rng, (3, size), np.complex128)
+    y0 = random_complex(rng, (3, *box.spectral_shape), np.complex128)
+    decay = rng.random(box.spectral_shape)
+    for kernels in kernel_sets():
+        couplings = kernels.prepare_couplings([(0, w0), (1, w1)], np.float64, size)
+        total, stage = total0.copy(), np.empty_like(start)
+        kernels.stage_sums(total, k, final, False, stage, start, factor, stages, couplings)
+        assert close(total, total0 + k * final, 1e-15), kernels.name
+        assert close(stage, start * factor + stages[0] * w0 + stages[1] * w1, 1e-15), kernels.name
+        kernels.stage_sums(total, k, final, True, None, start, None, stages, None)  # first: overwrite
+        assert close(total, k * final, 1e-15), kernels.name
+        stage_plain = np.empty_like(start)
+        kernels.stage_sums(total, None, None, False, stage_plain, start, None,
+                           stages, kernels.prepare_couplings([(1, 0.25)], np.float64, size))
+        assert close(stage_plain, start + 0.25 * stages[1], 1e-15), kernels.name
+        y = y0.copy()
+        kernels.finish_step(y, decay, total, support)
+        expected = y0 * decay
+        support.add_to(total, expected)
+        assert close(y, expected, 1e-15), kernels.name
+
+
+@needs_numba
+@pytest.mark.parametrize("flow,grid,scheme", [
+    (ABCFlow(1.0, 1.0, 1.0), (12, 12, 12), "rk4"),
+    (ABCFlow(1.0, 0.6, 0.3), (9, 10, 7), "rk3"),
+    (GallowayProctorFlow(polarisation="circular"), (10, 10, 8), "rk4"),
+])
+def test_whole_steps_agree_between_kernel_sets(flow, grid, scheme, random_field):
+    # 20 steps of the full solver: the compiled and the numpy kernels give the same field to round-off
+    box = Box(grid=grid)
+    results = []
+    for name in ("numpy", "numba"):
+        solver = build_solver(box, flow, 0.1, TransformSettings(threads=2, planning="estimate", kernels=name), scheme)
+        b = random_field(box, solver.engine).copy()
+        for n in range(20):
+            solver.stepper.step(0.05 * n, b, 0.05)
+        results.append(b)
+    assert close(results[1], results[0], 1e-13)
+
+
+def test_openmp_wait_is_set_only_where_the_user_did_not_choose():
+    environ = {}
+    configure_openmp_wait(environ)
+    assert environ == {"GOMP_SPINCOUNT": "10000"} and openmp_waits_briefly(environ)
+    for chosen in ({"OMP_WAIT_POLICY": "active"}, {"OMP_WAIT_POLICY": "PASSIVE"}, {"GOMP_SPINCOUNT": "5"}):
+        environ = dict(chosen)
+        configure_openmp_wait(environ)
+        assert environ == chosen
+    assert not openmp_waits_briefly({"OMP_WAIT_POLICY": "active", "GOMP_SPINCOUNT": "10"})
+    assert openmp_waits_briefly({"OMP_WAIT_POLICY": "passive"})
+    assert not openmp_waits_briefly({})  # long default spin: the numba kernels then use one thread
+
+
+def test_kernel_set_names_and_selection():
+    assert KERNEL_SETS == ("auto", "numba", "numpy")
+    assert make_kernels("numpy").name == "numpy"
+    assert make_kernels("auto").name == ("numba" if numba_available() else "numpy")
+    with pytest.raises(ValueError, match="unknown kernel set"):
+        make_kernels("fortran")
+
+
+CASE = """
+[domain]
+grid = [8, 8, 8]
+[flow]
+type = "abc"
+[magnetic]
+Rm = 5
+[numerics]
+kernels = {kernels}
+"""
+
+
+def test_case_key_names_the_kernel_set(write_case, monkeypatch):
+    case = load_case(write_case(CASE.format(kernels='"numpy"')))
+    assert case.numerics.kernels == "numpy" and math.isclose(case.eta, 0.2)
+    with pytest.raises(CaseError, match=r"numerics\.kernels.*one of \"auto\", \"numba\", \"numpy\""):
+        load_case(write_case(CASE.format(kernels='"fast"')))
+    monkeypatch.setattr("kindyn.case.schema.numba_available", lambda: False)
+    with pytest.raises(CaseError, match=r"numerics\.kernels.*numba is not installed"):
+        load_case(write_case(CASE.format(kernels='"numba"')))
