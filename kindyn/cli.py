@@ -13,7 +13,7 @@ import sys
 
 from kindyn import __version__
 from kindyn.errors import KindynError, NumericalError
-from kindyn.kernels import configure_openmp_wait
+from kindyn.array_kernels import configure_openmp_wait
 
 COMMANDS = ("run", "ensemble", "flow", "testfield", "sweep", "modes")
 

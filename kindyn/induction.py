@@ -19,7 +19,7 @@ inside the band; modes outside it only decay. The curl is evaluated on the block
 Hot path (beside the FFTs, memory traffic is what costs): the velocity components are kept at the
 shapes the flow returns (broadcastable, often two-dimensional); ``u x B`` is formed in place in the
 engine's physical buffer; the band values are scattered into the transform buffer and the curl
-gathered from it in one pass each. These passes are the array kernels of :mod:`kindyn.kernels`
+gathered from it in one pass each. These passes are the array kernels of :mod:`kindyn.array_kernels`
 (fused and multi-threaded with numba, blocked numpy otherwise). Unavoidable temporaries: a
 time-dependent flow's velocity, made at each stage time.
 
@@ -32,7 +32,7 @@ from __future__ import annotations
 import numpy as np
 
 from kindyn.errors import FlowError
-from kindyn.kernels.numpy_kernels import NumpyKernels
+from kindyn.array_kernels.numpy_kernels import NumpyKernels
 from kindyn.stepping.integrating_factor import BlockSupport
 
 
@@ -61,7 +61,7 @@ class InductionOperator:
     eta:
         Magnetic diffusivity; :attr:`decay_rates` is ``eta |k|^2``.
     kernels:
-        The array-kernel set (:func:`kindyn.kernels.make_kernels`); numpy by default.
+        The array-kernel set (:func:`kindyn.array_kernels.make_kernels`); numpy by default.
 
     Two entry points: :meth:`packed` on the band values packed as :attr:`support` describes (used by
     the stepper), and ``operator(t, b_hat, out)`` on full half-grid arrays (values of ``b_hat``

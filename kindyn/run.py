@@ -25,7 +25,7 @@ from kindyn.errors import CaseError, NumericalError
 from kindyn.flows.base import sample_velocity
 from kindyn.fields import flow_field_hat, probe_indices, probe_vector, random_field_hat
 from kindyn.induction import InductionOperator
-from kindyn.kernels import make_kernels
+from kindyn.array_kernels import make_kernels
 from kindyn.stepping import TABLEAUX, IntegratingFactorStepper
 from kindyn.timestep import Timing, choose_timing
 from kindyn.transforms import TransformSettings, make_engine, physical_from_spectral
@@ -84,7 +84,7 @@ class Solver:
 
 def build_solver(box, flow, eta: float, transforms: TransformSettings, scheme: str = "rk4") -> Solver:
     engine = make_engine(box, transforms)
-    kernels = make_kernels(transforms.kernels, transforms.threads)
+    kernels = make_kernels(transforms.array_kernels, transforms.threads)
     operator = InductionOperator(box, flow, engine, eta, kernels)
     stepper = IntegratingFactorStepper(operator, operator.decay_rates, TABLEAUX[scheme],
                                        engine.spectral.shape, engine.spectral.dtype, kernels)
@@ -93,7 +93,7 @@ def build_solver(box, flow, eta: float, transforms: TransformSettings, scheme: s
 
 def transform_settings(case) -> TransformSettings:
     n = case.numerics
-    return TransformSettings(n.fft, n.threads, n.planning, n.precision, n.kernels)
+    return TransformSettings(n.fft, n.threads, n.planning, n.precision, n.array_kernels)
 
 
 def initial_field(case, solver) -> np.ndarray:

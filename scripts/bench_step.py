@@ -7,7 +7,7 @@ For each grid size and precision, in fresh subprocesses (so that peak memory is 
     as the induction operator calls them;
 (b) one full step of kindyn's solver (:func:`kindyn.run.build_solver`, ABC flow A = B = C = 1,
     k = 1, Rm = 12, CFL time step; ``IntegratingFactorStepper.step``), with the array kernels of
-    ``--kernels`` (default auto: numba when installed) and, beside it, (b') with the numpy kernels;
+    ``--array-kernels`` (default auto: numba when installed) and, beside it, (b') with the numpy kernels;
 (c) the same step written plainly with numpy.fft (:class:`PlainStep` below: irfftn/rfftn, cross
     product, curl, 2/3 mask, Lawson RK4 with exponential factors, allocating as plain code does).
 
@@ -18,7 +18,7 @@ best repeats, the largest difference between (b) and (c) after one step from the
 that builds kindyn's solver (or the plain step) and takes two steps: in total, and above the same
 process after its imports. Ratios, not seconds: machines are shared and noisy. Targets (issue 2):
 at 64^3 on 2 cores, (b)/(a) <= 1.5 and (c)/(b) >= 3. Like the ``kindyn`` command, the benchmark sets
-a short OpenMP spin (:func:`kindyn.kernels.configure_openmp_wait`) unless the environment chooses.
+a short OpenMP spin (:func:`kindyn.array_kernels.configure_openmp_wait`) unless the environment chooses.
 
     python scripts/bench_step.py                       # 32^3, 64^3, 128^3; double and single
     python scripts/bench_step.py --sizes 64 --threads 2 --repeats 11 --precision double
@@ -38,7 +38,7 @@ from dataclasses import replace
 
 import numpy as np
 
-from kindyn.kernels import configure_openmp_wait
+from kindyn.array_kernels import configure_openmp_wait
 
 TARGET_SIZE, TARGET_FFT_RATIO, TARGET_PLAIN_RATIO = 64, 1.5, 3.0
 RM = 12.0
@@ -54,7 +54,7 @@ def parse_args(argv=None):
     p.add_argument("--precision", choices=["double", "single", "both"], default="both")
     p.add_argument("--planning", choices=["estimate", "measure", "patient"], default="measure",
                    help="FFTW planning effort (kindyn's default: measure)")
-    p.add_argument("--kernels", choices=["auto", "numba", "numpy"], default="auto",
+    p.add_argument("--array-kernels", choices=["auto", "numba", "numpy"], default="auto",
                    help="array kernels of (b) (kindyn's default: auto)")
     p.add_argument("--json", action="store_true", help="also print all results as one JSON object")
     p.add_argument("--worker", choices=["time", "memory-kindyn", "memory-plain"], help=argparse.SUPPRESS)
@@ -134,7 +134,7 @@ class PlainStep:
         return full * b_hat + h / 6 * (full * k1 + 2 * half * (k2 + k3) + k4)
 
 
-def setup(size: int, precision: str, threads: int, planning: str, kernels: str = "auto"):
+def setup(size: int, precision: str, threads: int, planning: str, array_kernels: str = "auto"):
     """Box, flow, eta and time step of the benchmark problem (ABC 1:1:1, k = 1, Rm = 12, CFL 1)."""
     from kindyn.box import Box
     from kindyn.flows.beltrami import ABCFlow
@@ -143,7 +143,7 @@ def setup(size: int, precision: str, threads: int, planning: str, kernels: str =
 
     box, flow = Box(grid=(size, size, size)), ABCFlow(1.0, 1.0, 1.0, 1.0)
     eta = flow.speed / (RM * flow.wavenumber)
-    settings = TransformSettings("fftw", threads, planning, precision, kernels)
+    settings = TransformSettings("fftw", threads, planning, precision, array_kernels)
     return box, flow, eta, cfl_time_step(flow, box, 1.0), settings, PRECISIONS[precision]
 
 
@@ -158,10 +158,10 @@ def time_worker(args) -> dict:
     from kindyn.run import build_solver
 
     box, flow, eta, h, settings, (real_dtype, complex_dtype) = setup(args.size, args.precision, args.threads,
-                                                                     args.planning, args.kernels)
+                                                                     args.planning, args.array_kernels)
     solver = build_solver(box, flow, eta, settings)
     engine, stepper = solver.engine, solver.stepper
-    numpy_stepper = build_solver(box, flow, eta, replace(settings, kernels="numpy")).stepper
+    numpy_stepper = build_solver(box, flow, eta, replace(settings, array_kernels="numpy")).stepper
     plain = PlainStep(box, sample_velocity(flow, box, 0.0), eta, real_dtype)
     b0 = random_band_field(box, complex_dtype)
 
@@ -218,7 +218,7 @@ def memory_worker(args) -> dict:
     # import everything first, so that "above" counts the field and the solver only
     for module in ("kindyn.box", "kindyn.flows.beltrami", "kindyn.timestep", "kindyn.transforms.fftw"):
         importlib.import_module(module)
-    from kindyn.kernels import numba_available  # imports numba when installed
+    from kindyn.array_kernels import numba_available  # imports numba when installed
 
     numba_available()
     from kindyn.flows.base import sample_velocity
@@ -226,7 +226,7 @@ def memory_worker(args) -> dict:
 
     before = peak_rss_bytes()
     box, flow, eta, h, settings, (real_dtype, complex_dtype) = setup(args.size, args.precision, args.threads,
-                                                                     args.planning, args.kernels)
+                                                                     args.planning, args.array_kernels)
     b = random_band_field(box, complex_dtype)
     if args.worker == "memory-kindyn":
         stepper = build_solver(box, flow, eta, settings).stepper
@@ -245,7 +245,7 @@ def memory_worker(args) -> dict:
 def run_worker(args, kind: str, size: int, precision: str) -> dict:
     command = [sys.executable, os.path.abspath(__file__), "--worker", kind, "--size", str(size),
                "--precision", precision, "--threads", str(args.threads), "--repeats", str(args.repeats),
-               "--warmup", str(args.warmup), "--planning", args.planning, "--kernels", args.kernels]
+               "--warmup", str(args.warmup), "--planning", args.planning, "--array-kernels", args.array_kernels]
     done = subprocess.run(command, capture_output=True, text=True)
     if done.returncode != 0:
         raise SystemExit(f"bench_step: worker {kind} at {size}^3 ({precision}) failed:\n{done.stderr.strip()}")

@@ -37,7 +37,7 @@ from kindyn.case.schema import RUN
 from kindyn.diagnostics.spectra import energy
 from kindyn.fields import flow_field_hat, random_field_hat
 from kindyn.flows import ABCFlow, GallowayProctorFlow
-from kindyn.kernels import numba_available
+from kindyn.array_kernels import numba_available
 from kindyn.run import build_solver, run_growth
 from kindyn.stepping import TABLEAUX
 from kindyn.transforms import ENGINES, TransformSettings, make_engine, physical_from_spectral, spectral_from_physical
@@ -75,10 +75,10 @@ class UniformFlow:
 def settings(engine: str = "fftw", precision: str = "double", kernels: str = "auto") -> TransformSettings:
     threads = 2 if kernels == "numba" else 1  # the compiled kernels also on more than one thread
     return TransformSettings(engine=engine, threads=threads, planning="estimate", precision=precision,
-                             kernels=kernels)
+                             array_kernels=kernels)
 
 
-# the array-kernel sets of kindyn.kernels: numpy always, numba where installed
+# the array-kernel sets of kindyn.array_kernels: numpy always, numba where installed
 KERNEL_SETS = ["numpy"] + (["numba"] if numba_available() else [])
 
 

@@ -82,7 +82,7 @@ THIRD_PARTY = {
     "dask": lambda f: f.startswith("kindyn/sweep/") or f == "kindyn/sweep.py",
     "distributed": lambda f: f.startswith("kindyn/sweep/") or f == "kindyn/sweep.py",
     # the optional compiled array kernels
-    "numba": lambda f: f == "kindyn/kernels/numba_kernels.py",
+    "numba": lambda f: f == "kindyn/array_kernels/numba_kernels.py",
     "mpi4py": lambda f: f.startswith("kindyn/transforms/"),
     "mpi4py_fft": lambda f: f.startswith("kindyn/transforms/"),
 }

@@ -13,7 +13,7 @@ import re
 from dataclasses import dataclass
 from typing import Callable
 
-from kindyn.kernels import KERNEL_SETS, numba_available
+from kindyn.array_kernels import KERNEL_SETS, numba_available
 
 REQUIRED = object()
 
@@ -101,7 +101,7 @@ def choice(*options: str) -> Callable:
 
 
 def kernel_set(value):
-    """An array-kernel set of :mod:`kindyn.kernels`; ``"numba"`` only where numba can be imported."""
+    """An array-kernel set of :mod:`kindyn.array_kernels`; ``"numba"`` only where numba can be imported."""
     value = choice(*KERNEL_SETS)(value)
     if value == "numba" and not numba_available():
         raise ValueError('"auto" or "numpy": numba is not installed here (pip install "kindyn[fast]")')
@@ -170,7 +170,7 @@ NUMERICS = {
     "threads": Key(positive_integer, 1, "threads of the FFTs and of the compiled array kernels"),
     "planning": Key(choice("estimate", "measure", "patient"), "measure", "FFTW planning effort"),
     "precision": Key(choice("double", "single"), "double", "floating-point precision of the fields"),
-    "kernels": Key(kernel_set, "auto",
+    "array_kernels": Key(kernel_set, "auto",
                    "array kernels of the step beside the FFTs: numba (fused, on `threads` threads; the "
                    "`fast` extra), numpy, or auto (numba when installed)"),
 }

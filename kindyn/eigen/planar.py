@@ -29,7 +29,7 @@ import numpy as np
 from kindyn.box import fft_mode_numbers, kept_by_two_thirds, max_kept_mode
 from kindyn.calculus import cross
 from kindyn.errors import FlowError
-from kindyn.kernels import make_kernels
+from kindyn.array_kernels import make_kernels
 from kindyn.stepping import TABLEAUX, IntegratingFactorStepper
 from kindyn.stepping.integrating_factor import BlockSupport
 from kindyn.transforms.planar import make_planar_engine
@@ -224,13 +224,13 @@ class PlanarSolver:
 
 
 def build_planar_solver(grid: PlanarGrid, flow, eta: float, scheme: str = "rk4", threads: int = 1,
-                        engine: str = "fftw", planning: str = "measure", kernels: str = "auto") -> PlanarSolver:
+                        engine: str = "fftw", planning: str = "measure", array_kernels: str = "auto") -> PlanarSolver:
     """Engine (:func:`~kindyn.transforms.planar.make_planar_engine`), operator and RK stepper of the
-    plane (stage sums by the array kernels named ``kernels``, see :mod:`kindyn.kernels`)."""
+    plane (stage sums by the array kernels named ``array_kernels``, see :mod:`kindyn.array_kernels`)."""
     engine = make_planar_engine(grid.grid, 3, engine, threads, planning)
     operator = PlanarInductionOperator(grid, flow, engine, eta)
     stepper = IntegratingFactorStepper(operator, operator.decay_rates, TABLEAUX[scheme],
-                                       engine.spectral.shape, engine.spectral.dtype, make_kernels(kernels, threads))
+                                       engine.spectral.shape, engine.spectral.dtype, make_kernels(array_kernels, threads))
     return PlanarSolver(grid, engine, operator, stepper)
 
 

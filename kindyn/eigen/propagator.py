@@ -97,6 +97,6 @@ def planar_propagator(grid: PlanarGrid, flow, eta: float, dt: float, steps: int,
     """
     settings = transforms or TransformSettings()
     solver = build_planar_solver(grid, flow, eta, scheme, settings.threads, settings.engine, settings.planning,
-                                 settings.kernels)
+                                 settings.array_kernels)
     return Propagator(solver.stepper, PlanarBasis(grid), solver.engine.spectral.shape, dt, steps, start_time,
                       solver)

@@ -105,7 +105,7 @@ class IntegratingFactorStepper:
     The stage sums run on work arrays ``(shape[0], size)``: the packed band values, or ``y`` itself
     seen as two-dimensional (then ``y`` must be C-contiguous). ``kernels`` forms them: an object with
     ``prepare_couplings``, ``stage_sums``, ``gather`` and ``finish_step`` (the array-kernel sets of
-    :mod:`kindyn.kernels`).
+    :mod:`kindyn.array_kernels`).
     """
 
     def __init__(self, rhs, decay_rates: np.ndarray, tableau: Tableau, shape, dtype, kernels):

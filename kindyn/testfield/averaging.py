@@ -40,7 +40,7 @@ from dataclasses import dataclass, field
 import numpy as np
 
 from kindyn.errors import NumericalError
-from kindyn.kernels import make_kernels
+from kindyn.array_kernels import make_kernels
 from kindyn.stepping import TABLEAUX, IntegratingFactorStepper
 from kindyn.testfield.problems import TestProblemOperator
 from kindyn.timestep import cfl_time_step, flow_time_period
@@ -116,7 +116,7 @@ class ProblemGroup:
             self.operators.append(op)
             self.steppers.append(IntegratingFactorStepper(op, op.decay_rates, TABLEAUX[scheme],
                                                           engine.spectral.shape, engine.spectral.dtype,
-                                                          make_kernels(transforms.kernels, transforms.threads)))
+                                                          make_kernels(transforms.array_kernels, transforms.threads)))
             self.states.append(np.zeros(engine.spectral.shape, dtype=engine.spectral.dtype))
 
     def step(self, t: float, dt: float) -> None:

@@ -86,7 +86,7 @@ class TestFieldResult:
 
 def _transforms(case) -> TransformSettings:
     n = case.numerics
-    return TransformSettings(n.fft, n.threads, n.planning, "double", n.kernels)
+    return TransformSettings(n.fft, n.threads, n.planning, "double", n.array_kernels)
 
 
 def _planar_coefficients(groups_of_fields, s):

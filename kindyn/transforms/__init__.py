@@ -32,13 +32,13 @@ PLANNING_EFFORTS = ("estimate", "measure", "patient")
 @dataclass(frozen=True)
 class TransformSettings:
     """How to compute on the grid: transform engine, threads, FFTW planning effort, floating precision
-    and the array-kernel set of the step's other passes (:mod:`kindyn.kernels`)."""
+    and the array-kernel set of the step's other passes (:mod:`kindyn.array_kernels`)."""
 
     engine: str = "fftw"
     threads: int = 1
     planning: str = "measure"
     precision: str = "double"
-    kernels: str = "auto"
+    array_kernels: str = "auto"
 
 
 def make_engine(box: Box, settings: TransformSettings = TransformSettings(), ncomp: int = 3):

@@ -1,6 +1,6 @@
 """The hot-path kernels in plain numpy (one thread), blocked so that operands stay in cache.
 
-Conventions and layouts: :mod:`kindyn.kernels`. Each method writes into the arrays it is given;
+Conventions and layouts: :mod:`kindyn.array_kernels`. Each method writes into the arrays it is given;
 the scratch it needs is allocated on first use and kept (one instance per operator or stepper).
 """
 

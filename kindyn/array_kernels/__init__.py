@@ -5,9 +5,9 @@ cross product ``u x B`` on the grid, the spectral curl, scattering the stepped b
 transform buffer, and the Runge–Kutta stage sums. With plain numpy each of these is several passes
 over memory on one thread; fused, multi-threaded loops make them a small fraction of the FFT time.
 
-* ``"numpy"`` (:mod:`kindyn.kernels.numpy_kernels`): always available; blocked so that operands stay
+* ``"numpy"`` (:mod:`kindyn.array_kernels.numpy_kernels`): always available; blocked so that operands stay
   in cache, one thread.
-* ``"numba"`` (:mod:`kindyn.kernels.numba_kernels`): the same operations as fused loops compiled by
+* ``"numba"`` (:mod:`kindyn.array_kernels.numba_kernels`): the same operations as fused loops compiled by
   numba, on ``threads`` threads. Optional (``pip install "kindyn[fast]"``); compiled on first use and
   cached on disk.
 
@@ -66,7 +66,7 @@ def openmp_waits_briefly(environ=None) -> bool:
 def numba_available() -> bool:
     """Whether the numba kernels can be loaded (numba installed and importable with this numpy)."""
     try:
-        import kindyn.kernels.numba_kernels  # noqa: F401
+        import kindyn.array_kernels.numba_kernels  # noqa: F401
     except ImportError:
         return False
     return True
@@ -79,11 +79,11 @@ def make_kernels(choice: str = "auto", threads: int = 1):
         raise ValueError(f"unknown kernel set {choice!r}; expected one of {KERNEL_SETS}")
     if choice == "numba" or (choice == "auto" and numba_available()):
         try:
-            from kindyn.kernels.numba_kernels import NumbaKernels
+            from kindyn.array_kernels.numba_kernels import NumbaKernels
         except ImportError as error:
             raise KernelsUnavailable(f"the numba kernels need numba ({error}); install it with "
                                      f"pip install \"kindyn[fast]\" or choose kernels = \"numpy\"") from None
         return NumbaKernels(threads if openmp_waits_briefly() else 1)
-    from kindyn.kernels.numpy_kernels import NumpyKernels
+    from kindyn.array_kernels.numpy_kernels import NumpyKernels
 
     return NumpyKernels()

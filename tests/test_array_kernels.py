@@ -1,4 +1,4 @@
-"""The array kernels of the step (kindyn/kernels) against plain numpy, and their selection.
+"""The array kernels of the step (kindyn/array_kernels) against plain numpy, and their selection.
 
 References (outside kindyn): each kernel is checked against the same operation written directly
 with numpy's array arithmetic and fancy indexing (``np.cross``-style component formulas, boolean
@@ -20,7 +20,7 @@ from kindyn.case import load_case
 from kindyn.errors import CaseError
 from kindyn.flows import ABCFlow, GallowayProctorFlow
 from kindyn.induction import band_blocks
-from kindyn.kernels import (KERNEL_SETS, configure_openmp_wait, make_kernels, numba_available,
+from kindyn.array_kernels import (KERNEL_SETS, configure_openmp_wait, make_kernels, numba_available,
                             openmp_waits_briefly)
 from kindyn.run import build_solver
 from kindyn.stepping.integrating_factor import BlockSupport
@@ -155,7 +155,7 @@ def test_whole_steps_agree_between_kernel_sets(flow, grid, scheme, random_field)
     box = Box(grid=grid)
     results = []
     for name in ("numpy", "numba"):
-        solver = build_solver(box, flow, 0.1, TransformSettings(threads=2, planning="estimate", kernels=name), scheme)
+        solver = build_solver(box, flow, 0.1, TransformSettings(threads=2, planning="estimate", array_kernels=name), scheme)
         b = random_field(box, solver.engine).copy()
         for n in range(20):
             solver.stepper.step(0.05 * n, b, 0.05)
@@ -192,15 +192,15 @@ type = "abc"
 [magnetic]
 Rm = 5
 [numerics]
-kernels = {kernels}
+array_kernels = {kernels}
 """
 
 
 def test_case_key_names_the_kernel_set(write_case, monkeypatch):
     case = load_case(write_case(CASE.format(kernels='"numpy"')))
-    assert case.numerics.kernels == "numpy" and math.isclose(case.eta, 0.2)
-    with pytest.raises(CaseError, match=r"numerics\.kernels.*one of \"auto\", \"numba\", \"numpy\""):
+    assert case.numerics.array_kernels == "numpy" and math.isclose(case.eta, 0.2)
+    with pytest.raises(CaseError, match=r"numerics\.array_kernels.*one of \"auto\", \"numba\", \"numpy\""):
         load_case(write_case(CASE.format(kernels='"fast"')))
     monkeypatch.setattr("kindyn.case.schema.numba_available", lambda: False)
-    with pytest.raises(CaseError, match=r"numerics\.kernels.*numba is not installed"):
+    with pytest.raises(CaseError, match=r"numerics\.array_kernels.*numba is not installed"):
         load_case(write_case(CASE.format(kernels='"numba"')))

@@ -1,12 +1,12 @@
 """The hot-path kernels as fused loops compiled by numba, on ``threads`` threads.
 
-Same operations, arguments and arithmetic order as :mod:`kindyn.kernels.numpy_kernels` (layouts:
-:mod:`kindyn.kernels`); each loop reads and writes every array once. Compiled on first use for each
+Same operations, arguments and arithmetic order as :mod:`kindyn.array_kernels.numpy_kernels` (layouts:
+:mod:`kindyn.array_kernels`); each loop reads and writes every array once. Compiled on first use for each
 dtype (a few seconds) and cached on disk next to this module, so later processes load the machine
 code. No fast-math: the results match the numpy set to round-off.
 
 Threads: the parallel loops run on ``min(threads, numba.config.NUMBA_NUM_THREADS)`` threads, set
-before each call (numba keeps that number per calling thread); see :mod:`kindyn.kernels` on
+before each call (numba keeps that number per calling thread); see :mod:`kindyn.array_kernels` on
 OpenMP waiting, which decides whether more than one thread pays. Numba's threading layer is OpenMP or
 TBB where present and a simple work queue otherwise; the work queue must not be entered from two
 Python threads at once, so run several solvers in one process only with one of the former (kindyn's
@@ -122,7 +122,7 @@ class NumbaKernels:
     name = "numba"
 
     def __init__(self, threads: int = 1):
-        from kindyn.kernels.numpy_kernels import NumpyKernels
+        from kindyn.array_kernels.numpy_kernels import NumpyKernels
 
         self.threads = max(1, min(int(threads), numba.config.NUMBA_NUM_THREADS))
         self._numpy = NumpyKernels()  # for layouts the line-wise loops do not cover
