@@ -104,6 +104,18 @@ class InductionOperator:
             return t - 0.5 * min(t - previous, tau)
         return t
 
+    def timing_probe(self):
+        """A callable evaluating ``N`` once on a zero field at ``t = 0`` that leaves the operator's
+        counters and renewal bookkeeping as they were (for :func:`kindyn.array_kernels.choose_threads`)."""
+        dtype = self.engine.spectral.dtype
+        zero, out = np.zeros((3, self.support.size), dtype), np.empty((3, self.support.size), dtype)
+
+        def evaluate():
+            evaluations, last = self.evaluations, self._last_stage_time
+            self.packed(0.0, zero, out)
+            self.evaluations, self._last_stage_time = evaluations, last
+        return evaluate
+
     def velocity_components(self, t: float) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
         """``u_x, u_y, u_z`` at ``t`` as 3-D arrays of the shapes the flow returns (each broadcasts to
         the grid: the ABC flow's components depend on two coordinates each, so they are ``n`` times

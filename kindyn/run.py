@@ -25,7 +25,7 @@ from kindyn.errors import CaseError, NumericalError
 from kindyn.flows.base import sample_velocity
 from kindyn.fields import flow_field_hat, probe_indices, probe_vector, random_field_hat
 from kindyn.induction import InductionOperator
-from kindyn.array_kernels import make_kernels
+from kindyn.array_kernels import choose_threads, make_kernels
 from kindyn.stepping import TABLEAUX, IntegratingFactorStepper
 from kindyn.timestep import Timing, choose_timing
 from kindyn.transforms import TransformSettings, make_engine, physical_from_spectral
@@ -86,6 +86,7 @@ def build_solver(box, flow, eta: float, transforms: TransformSettings, scheme: s
     engine = make_engine(box, transforms)
     kernels = make_kernels(transforms.array_kernels, transforms.threads)
     operator = InductionOperator(box, flow, engine, eta, kernels)
+    choose_threads(kernels, operator.timing_probe())
     stepper = IntegratingFactorStepper(operator, operator.decay_rates, TABLEAUX[scheme],
                                        engine.spectral.shape, engine.spectral.dtype, kernels)
     return Solver(box, engine, operator, stepper)

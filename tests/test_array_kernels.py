@@ -20,8 +20,7 @@ from kindyn.case import load_case
 from kindyn.errors import CaseError
 from kindyn.flows import ABCFlow, GallowayProctorFlow
 from kindyn.induction import band_blocks
-from kindyn.array_kernels import (KERNEL_SETS, configure_openmp_wait, make_kernels, numba_available,
-                            openmp_waits_briefly)
+from kindyn.array_kernels import KERNEL_SETS, choose_threads, configure_openmp_wait, make_kernels, numba_available
 from kindyn.run import build_solver
 from kindyn.stepping.integrating_factor import BlockSupport
 from kindyn.transforms import TransformSettings
@@ -166,14 +165,38 @@ def test_whole_steps_agree_between_kernel_sets(flow, grid, scheme, random_field)
 def test_openmp_wait_is_set_only_where_the_user_did_not_choose():
     environ = {}
     configure_openmp_wait(environ)
-    assert environ == {"GOMP_SPINCOUNT": "10000"} and openmp_waits_briefly(environ)
+    assert environ == {"GOMP_SPINCOUNT": "10000"}
     for chosen in ({"OMP_WAIT_POLICY": "active"}, {"OMP_WAIT_POLICY": "PASSIVE"}, {"GOMP_SPINCOUNT": "5"}):
         environ = dict(chosen)
         configure_openmp_wait(environ)
         assert environ == chosen
-    assert not openmp_waits_briefly({"OMP_WAIT_POLICY": "active", "GOMP_SPINCOUNT": "10"})
-    assert openmp_waits_briefly({"OMP_WAIT_POLICY": "passive"})
-    assert not openmp_waits_briefly({})  # long default spin: the numba kernels then use one thread
+
+
+class FakeKernels:
+    def __init__(self, threads):
+        self.threads = threads
+
+
+@pytest.mark.parametrize("costs,expected", [
+    ({1: 3.0, 4: 1.0}, 4),   # threads pay
+    ({1: 1.0, 4: 2.5}, 1),   # they do not (small grid, or OpenMP pools that spin against each other)
+    ({1: 1.0, 4: 1.0}, 1),   # a tie goes to one thread
+])
+def test_choose_threads_keeps_the_faster_count(monkeypatch, costs, expected):
+    # a fake clock that each evaluation advances by the cost of the current thread count
+    clock = {"now": 0.0}
+    monkeypatch.setattr("kindyn.array_kernels.time.perf_counter", lambda: clock["now"])
+    kernels = FakeKernels(4)
+    calls = []
+
+    def evaluate():
+        calls.append(kernels.threads)
+        clock["now"] += costs[kernels.threads]
+
+    assert choose_threads(kernels, evaluate, repeats=3) == expected == kernels.threads
+    assert calls == [1] * 4 + [4] * 4  # one warm-up and three timed calls per candidate
+    single = FakeKernels(1)
+    assert choose_threads(single, evaluate) == 1 and calls[-1] == 4  # nothing to choose: no calls
 
 
 def test_kernel_set_names_and_selection():

@@ -19,8 +19,10 @@ each pool's idle workers take the cores the other pool needs next (on two cores 
 four times slower than with numpy alone). A short spin (``GOMP_SPINCOUNT=10000``, some
 microseconds) or sleeping at once (``OMP_WAIT_POLICY=passive``) avoids that; both must be set
 before the runtimes start, i.e. in the environment of the process. The ``kindyn`` command does it
-(:func:`configure_openmp_wait`); elsewhere the numba kernels run on one thread unless the
-environment sets one of the two (:func:`openmp_waits_briefly`). Both sets compute the same
+(:func:`configure_openmp_wait`). Whether more than one thread then pays (it does not on small
+grids, nor where the pools were started with the long spin) is measured, not guessed:
+:func:`choose_threads` times whole operator evaluations on one thread and on ``threads``, as FFTW
+times its candidate plans. Both sets compute the same
 arithmetic in the same order (no fused multiply-add, no fast-math), so results agree to round-off
 (tests compare them). Layouts, shared by both sets:
 
@@ -36,6 +38,7 @@ arithmetic in the same order (no fused multiply-add, no fast-math), so results a
 from __future__ import annotations
 
 import os
+import time
 
 KERNEL_SETS = ("auto", "numba", "numpy")
 
@@ -54,13 +57,28 @@ def configure_openmp_wait(environ=None) -> None:
         environ["GOMP_SPINCOUNT"] = SHORT_SPIN
 
 
-def openmp_waits_briefly(environ=None) -> bool:
-    """Whether idle OpenMP workers leave the cores soon (short spin or passive waiting)."""
-    environ = os.environ if environ is None else environ
-    policy = environ.get("OMP_WAIT_POLICY", "").strip().lower()
-    if policy == "active":
-        return False
-    return policy == "passive" or "GOMP_SPINCOUNT" in environ
+def choose_threads(kernels, evaluate, repeats: int = 3) -> int:
+    """Set ``kernels.threads`` to the faster of 1 and ``kernels.threads`` for ``evaluate()``.
+
+    ``evaluate`` is a callable without arguments doing the work the kernels serve (one operator
+    evaluation, FFTs included). Each candidate is timed ``repeats`` times after one warm-up call
+    (which also compiles); the smallest time counts. Returns the chosen number of threads.
+    """
+    candidates = sorted({1, kernels.threads})
+    if len(candidates) == 1:
+        return kernels.threads
+    best = {}
+    for threads in candidates:
+        kernels.threads = threads
+        evaluate()
+        times = []
+        for _ in range(repeats):
+            start = time.perf_counter()
+            evaluate()
+            times.append(time.perf_counter() - start)
+        best[threads] = min(times)
+    kernels.threads = min(candidates, key=lambda n: (best[n], n))
+    return kernels.threads
 
 
 def numba_available() -> bool:
@@ -74,7 +92,7 @@ def numba_available() -> bool:
 
 def make_kernels(choice: str = "auto", threads: int = 1):
     """The kernel set named ``choice`` (one of :data:`KERNEL_SETS`) running on ``threads`` threads
-    (the numba set on one thread unless :func:`openmp_waits_briefly`)."""
+    (the numpy set always on one; see :func:`choose_threads` for when more pay)."""
     if choice not in KERNEL_SETS:
         raise ValueError(f"unknown kernel set {choice!r}; expected one of {KERNEL_SETS}")
     if choice == "numba" or (choice == "auto" and numba_available()):
@@ -83,7 +101,7 @@ def make_kernels(choice: str = "auto", threads: int = 1):
         except ImportError as error:
             raise KernelsUnavailable(f"the numba kernels need numba ({error}); install it with "
                                      f"pip install \"kindyn[fast]\" or choose kernels = \"numpy\"") from None
-        return NumbaKernels(threads if openmp_waits_briefly() else 1)
+        return NumbaKernels(threads)
     from kindyn.array_kernels.numpy_kernels import NumpyKernels
 
     return NumpyKernels()

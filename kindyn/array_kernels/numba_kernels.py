@@ -7,7 +7,7 @@ code. No fast-math: the results match the numpy set to round-off.
 
 Threads: the parallel loops run on ``min(threads, numba.config.NUMBA_NUM_THREADS)`` threads, set
 before each call (numba keeps that number per calling thread); see :mod:`kindyn.array_kernels` on
-OpenMP waiting, which decides whether more than one thread pays. Numba's threading layer is OpenMP or
+OpenMP waiting and on measuring whether more than one thread pays. Numba's threading layer is OpenMP or
 TBB where present and a simple work queue otherwise; the work queue must not be entered from two
 Python threads at once, so run several solvers in one process only with one of the former (kindyn's
 sweeps run each point in its own process).

@@ -226,11 +226,12 @@ class PlanarSolver:
 def build_planar_solver(grid: PlanarGrid, flow, eta: float, scheme: str = "rk4", threads: int = 1,
                         engine: str = "fftw", planning: str = "measure", array_kernels: str = "auto") -> PlanarSolver:
     """Engine (:func:`~kindyn.transforms.planar.make_planar_engine`), operator and RK stepper of the
-    plane (stage sums by the array kernels named ``array_kernels``, see :mod:`kindyn.array_kernels`)."""
+    plane (stage sums by the array kernels named ``array_kernels``, see :mod:`kindyn.array_kernels`,
+    on one thread: they are a small part of the planar step)."""
     engine = make_planar_engine(grid.grid, 3, engine, threads, planning)
     operator = PlanarInductionOperator(grid, flow, engine, eta)
     stepper = IntegratingFactorStepper(operator, operator.decay_rates, TABLEAUX[scheme],
-                                       engine.spectral.shape, engine.spectral.dtype, make_kernels(array_kernels, threads))
+                                       engine.spectral.shape, engine.spectral.dtype, make_kernels(array_kernels))
     return PlanarSolver(grid, engine, operator, stepper)
 
 

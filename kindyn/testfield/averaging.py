@@ -116,7 +116,7 @@ class ProblemGroup:
             self.operators.append(op)
             self.steppers.append(IntegratingFactorStepper(op, op.decay_rates, TABLEAUX[scheme],
                                                           engine.spectral.shape, engine.spectral.dtype,
-                                                          make_kernels(transforms.array_kernels, transforms.threads)))
+                                                          make_kernels(transforms.array_kernels)))
             self.states.append(np.zeros(engine.spectral.shape, dtype=engine.spectral.dtype))
 
     def step(self, t: float, dt: float) -> None:
