@@ -5,26 +5,17 @@ cross product ``u x B`` on the grid, the spectral curl, scattering the stepped b
 transform buffer, and the Runge–Kutta stage sums. With plain numpy each of these is several passes
 over memory on one thread; fused, multi-threaded loops make them a small fraction of the FFT time.
 
-* ``"numpy"`` (:mod:`kindyn.array_kernels.numpy_kernels`): always available; blocked so that operands stay
-  in cache, one thread.
-* ``"numba"`` (:mod:`kindyn.array_kernels.numba_kernels`): the same operations as fused loops compiled by
-  numba, on ``threads`` threads. Optional (``pip install "kindyn[fast]"``); compiled on first use and
-  cached on disk.
+* ``"numpy"`` (:mod:`kindyn.array_kernels.numpy_kernels`): always available; blocked so that
+  operands stay in cache; one thread.
+* ``"numba"`` (:mod:`kindyn.array_kernels.numba_kernels`): the same operations as fused loops
+  compiled by numba, on ``threads`` threads. Optional (``pip install "kindyn[fast]"``); compiled on
+  first use and cached on disk.
 
-``"auto"`` takes numba when it can be imported, numpy otherwise.
-
-OpenMP waiting. pyfftw's FFTW threads and numba's parallel loops are two OpenMP pools that take
-turns on the same cores. By default a GNU OpenMP worker spins for a long while after its loop, so
-each pool's idle workers take the cores the other pool needs next (on two cores the 64^3 step ran
-four times slower than with numpy alone). A short spin (``GOMP_SPINCOUNT=10000``, some
-microseconds) or sleeping at once (``OMP_WAIT_POLICY=passive``) avoids that; both must be set
-before the runtimes start, i.e. in the environment of the process. The ``kindyn`` command does it
-(:func:`configure_openmp_wait`). Whether more than one thread then pays (it does not on small
-grids, nor where the pools were started with the long spin) is measured, not guessed:
-:func:`choose_threads` times whole operator evaluations on one thread and on ``threads``, as FFTW
-times its candidate plans. Both sets compute the same
+``"auto"`` takes numba when it can be imported, numpy otherwise. Both sets compute the same
 arithmetic in the same order (no fused multiply-add, no fast-math), so results agree to round-off
-(tests compare them). Layouts, shared by both sets:
+(tests compare them).
+
+Layouts, shared by both sets:
 
 * physical fields ``(3, nx, ny, nz)``; velocity components 3-D arrays that broadcast to ``(nx, ny, nz)``;
 * spectral fields ``(3, nx, ny, nz//2+1)``;
@@ -32,7 +23,19 @@ arithmetic in the same order (no fused multiply-add, no fast-math), so results a
   says: its blocks one after the other. The 2/3-rule band is made of whole lines along ``z`` from
   ``m_z = 0``, so the support also has a line table: line ``(i, j)`` starts at
   ``support.line_start[i, j]`` of the packed axis (``-1``: outside the band) and is
-  ``support.line_length`` long. The numba set visits the band line by line; the numpy set block by block.
+  ``support.line_length`` long. The numba set visits the band line by line, the numpy set block
+  by block.
+
+OpenMP waiting. pyfftw's FFTW threads and numba's parallel loops are two OpenMP pools that take
+turns on the same cores. By default a GNU OpenMP worker spins for a long while after its loop, so
+each pool's idle workers take the cores the other pool needs next (on two cores the 64^3 step ran
+four times slower than with numpy alone). A short spin (``GOMP_SPINCOUNT=10000``, some
+microseconds) or sleeping at once (``OMP_WAIT_POLICY=passive``) avoids that; either must be set
+before the runtimes start, i.e. in the environment of the process. The ``kindyn`` command does it
+(:func:`configure_openmp_wait`). Whether more than one thread then pays (it does not on small
+grids, nor where the pools were started with the long spin) is measured, not guessed:
+:func:`choose_threads` times whole operator evaluations on one thread and on ``threads``, as FFTW
+times its candidate plans.
 """
 
 from __future__ import annotations
@@ -40,10 +43,12 @@ from __future__ import annotations
 import os
 import time
 
+from kindyn.errors import KindynError
+
 KERNEL_SETS = ("auto", "numba", "numpy")
 
 
-class KernelsUnavailable(RuntimeError):
+class KernelsUnavailable(KindynError):
     """The kernel set asked for cannot be used here (e.g. numba is not installed)."""
 
 
@@ -85,7 +90,7 @@ def numba_available() -> bool:
     """Whether the numba kernels can be loaded (numba installed and importable with this numpy)."""
     try:
         import kindyn.array_kernels.numba_kernels  # noqa: F401
-    except ImportError:
+    except (ImportError, RuntimeError, OSError):  # not installed, or no usable compiler cache
         return False
     return True
 
@@ -98,7 +103,7 @@ def make_kernels(choice: str = "auto", threads: int = 1):
     if choice == "numba" or (choice == "auto" and numba_available()):
         try:
             from kindyn.array_kernels.numba_kernels import NumbaKernels
-        except ImportError as error:
+        except (ImportError, RuntimeError, OSError) as error:
             raise KernelsUnavailable(f"the numba kernels need numba ({error}); install it with "
                                      f"pip install \"kindyn[fast]\" or choose kernels = \"numpy\"") from None
         return NumbaKernels(threads)

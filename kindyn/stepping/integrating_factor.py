@@ -24,6 +24,10 @@ may offer
 The stages are then computed on the packed values only. Outside the support ``N`` vanishes, so
 there ``y`` is advanced exactly by ``E(h) y``: the result is the same as the unpacked scheme, with
 about a third of the memory traffic and memory. This module knows nothing about magnetism.
+
+The sums themselves (``total += w K``, ``Y = E y_n + sum w_j K_j``, ``y <- E(h) y + total``) are
+formed by an array-kernel set handed in by the caller (:mod:`kindyn.array_kernels`: one fused pass
+per stage with numba, blocked numpy otherwise).
 """
 
 from __future__ import annotations
