@@ -70,6 +70,7 @@ class RunOutcome:
     wall_seconds: float
     resumed: bool
     u_rms: float  # rms speed of the flow at t = 0 on the grid
+    array_kernels: str = ""  # the kernel set and threads the solver chose, e.g. "numba, 2 threads"
 
 
 @dataclass
@@ -80,6 +81,12 @@ class Solver:
     engine: object
     operator: InductionOperator
     stepper: IntegratingFactorStepper
+
+    @property
+    def kernels_used(self) -> str:
+        """The array-kernel set and its threads, as chosen when the solver was built."""
+        kernels = self.operator.kernels
+        return f"{kernels.name}, {kernels.threads} thread{'s' if kernels.threads != 1 else ''}"
 
 
 def build_solver(box, flow, eta: float, transforms: TransformSettings, scheme: str = "rk4") -> Solver:
@@ -185,7 +192,7 @@ def run_growth(case, progress=None, checkpoint=None) -> RunOutcome:
     return RunOutcome(estimate, record, b_hat, field, shell_spectrum(b_hat, box), ratio,
                       ratio > settings.resolution_threshold, step, t, timing, stop_reason,
                       wallclock.time() - started, bool(state),
-                      _rms_speed(flow, box))
+                      _rms_speed(flow, box), solver.kernels_used)
 
 
 def _rms_speed(flow, box) -> float:

@@ -41,6 +41,7 @@ def result_summary(case, outcome) -> dict:
         "mean_field_kept": False,
         "wall_seconds": outcome.wall_seconds,
         "resumed": outcome.resumed,
+        "array_kernels": outcome.array_kernels,
     }
 
 
