@@ -19,8 +19,8 @@ inside the band; modes outside it only decay. The curl is evaluated on the block
 Hot path (beside the FFTs, memory traffic is what costs): the velocity components are kept at the
 shapes the flow returns (broadcastable, often two-dimensional); ``u x B`` is formed in place in the
 engine's physical buffer; the band values are scattered into the transform buffer and the curl
-gathered from it in one pass each. These passes are the array kernels of :mod:`kindyn.array_kernels`
-(fused and multi-threaded with numba, blocked numpy otherwise). Unavoidable temporaries: a
+gathered from it. These passes are the array kernels of :mod:`kindyn.array_kernels` (one fused,
+possibly multi-threaded pass each with numba; blocked numpy otherwise). Unavoidable temporaries: a
 time-dependent flow's velocity, made at each stage time.
 
 The uniform (k = 0) component of ``B`` is left untouched by ``N`` (``k x ... = 0``) and does not
@@ -73,7 +73,6 @@ class InductionOperator:
         self.kernels = kernels if kernels is not None else NumpyKernels()
         real_dtype = engine.real.dtype
         self.decay_rates = (self.eta * box.k_squared).astype(real_dtype)
-        self.mask = box.dealias_mask.astype(real_dtype)
         self.support = BlockSupport(band_blocks(box), box.spectral_shape)
         # the pyfftw engine can skip the 1/N pass of its forward transform; other engines normalise
         self._unnormalised = getattr(engine, "unnormalised_forward", False)

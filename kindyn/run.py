@@ -86,12 +86,14 @@ class Solver:
     def kernels_used(self) -> str:
         """The array-kernel set and its threads, as chosen when the solver was built."""
         kernels = self.operator.kernels
-        return f"{kernels.name}, {kernels.threads} thread{'s' if kernels.threads != 1 else ''}"
+        used = f"{kernels.name}, {kernels.threads} thread{'s' if kernels.threads != 1 else ''}"
+        reason = getattr(kernels, "fallback_reason", "")
+        return f"{used} ({reason})" if reason else used
 
 
 def build_solver(box, flow, eta: float, transforms: TransformSettings, scheme: str = "rk4") -> Solver:
     engine = make_engine(box, transforms)
-    kernels = make_kernels(transforms.array_kernels, transforms.threads)
+    kernels = make_kernels(transforms.array_kernels, transforms.threads, engine.real.dtype)
     operator = InductionOperator(box, flow, engine, eta, kernels)
     choose_threads(kernels, operator.timing_probe())
     stepper = IntegratingFactorStepper(operator, operator.decay_rates, TABLEAUX[scheme],

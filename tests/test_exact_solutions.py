@@ -73,7 +73,7 @@ class UniformFlow:
 
 
 def settings(engine: str = "fftw", precision: str = "double", kernels: str = "auto") -> TransformSettings:
-    threads = 2 if kernels == "numba" else 1  # the compiled kernels also on more than one thread
+    threads = 2 if kernels == "numba" else 1  # FFTW on 2 threads; the kernels' threads are measured
     return TransformSettings(engine=engine, threads=threads, planning="estimate", precision=precision,
                              array_kernels=kernels)
 

@@ -40,8 +40,11 @@ times its candidate plans.
 
 from __future__ import annotations
 
+import importlib.util
 import os
 import time
+
+import numpy as np
 
 from kindyn.errors import KindynError
 
@@ -56,9 +59,10 @@ SHORT_SPIN = "10000"  # GOMP_SPINCOUNT: busy-wait iterations before an idle Open
 
 
 def configure_openmp_wait(environ=None) -> None:
-    """Entry points only, before pyfftw or numba start OpenMP: a short spin unless the user chose."""
+    """Entry points only, before pyfftw or numba start OpenMP: a short spin unless the user chose,
+    and only where numba is installed (without it there is only FFTW's pool)."""
     environ = os.environ if environ is None else environ
-    if "OMP_WAIT_POLICY" not in environ and "GOMP_SPINCOUNT" not in environ:
+    if "OMP_WAIT_POLICY" not in environ and "GOMP_SPINCOUNT" not in environ and numba_installed():
         environ["GOMP_SPINCOUNT"] = SHORT_SPIN
 
 
@@ -86,27 +90,54 @@ def choose_threads(kernels, evaluate, repeats: int = 3) -> int:
     return kernels.threads
 
 
-def numba_available() -> bool:
-    """Whether the numba kernels can be loaded (numba installed and importable with this numpy)."""
+def numba_unavailable_reason() -> str | None:
+    """Why the numba kernels cannot be loaded here (not installed, no usable compiler cache, JIT
+    disabled by ``NUMBA_DISABLE_JIT``), or None when they can."""
     try:
-        import kindyn.array_kernels.numba_kernels  # noqa: F401
-    except (ImportError, RuntimeError, OSError):  # not installed, or no usable compiler cache
-        return False
-    return True
+        from kindyn.array_kernels.numba_kernels import JIT_ENABLED
+    except (ImportError, RuntimeError, OSError) as error:
+        return f"numba cannot be loaded: {error}"
+    return None if JIT_ENABLED else "numba's compiler is disabled (NUMBA_DISABLE_JIT)"
 
 
-def make_kernels(choice: str = "auto", threads: int = 1):
-    """The kernel set named ``choice`` (one of :data:`KERNEL_SETS`) running on ``threads`` threads
-    (the numpy set always on one; see :func:`choose_threads` for when more pay)."""
-    if choice not in KERNEL_SETS:
-        raise ValueError(f"unknown kernel set {choice!r}; expected one of {KERNEL_SETS}")
-    if choice == "numba" or (choice == "auto" and numba_available()):
-        try:
-            from kindyn.array_kernels.numba_kernels import NumbaKernels
-        except (ImportError, RuntimeError, OSError) as error:
-            raise KernelsUnavailable(f"the numba kernels need numba ({error}); install it with "
-                                     f"pip install \"kindyn[fast]\" or choose kernels = \"numpy\"") from None
-        return NumbaKernels(threads)
+def numba_available() -> bool:
+    return numba_unavailable_reason() is None
+
+
+def numba_installed() -> bool:
+    """Whether a numba package is present at all (without importing it)."""
+    return importlib.util.find_spec("numba") is not None
+
+
+def make_kernels(choice: str = "auto", threads: int = 1, real_dtype=np.float64):
+    """The kernel set named ``choice`` (one of :data:`KERNEL_SETS`) for fields of ``real_dtype``
+    (float64 or float32, and the matching complex type), on ``threads`` threads (the numpy set
+    always on one; see :func:`choose_threads` for when more pay).
+
+    The numba set is compiled (or loaded from the disk cache) and tried on small arrays here, so
+    that a numba that imports but cannot compile fails now: ``"numba"`` then raises
+    :class:`KernelsUnavailable`, ``"auto"`` falls back to numpy and says why in ``fallback_reason``.
+    """
     from kindyn.array_kernels.numpy_kernels import NumpyKernels
 
-    return NumpyKernels()
+    if choice not in KERNEL_SETS:
+        raise ValueError(f"unknown kernel set {choice!r}; expected one of {KERNEL_SETS}")
+    if choice == "numpy":
+        return NumpyKernels()
+    reason = numba_unavailable_reason()
+    if reason is None:
+        from kindyn.array_kernels.numba_kernels import NumbaKernels
+
+        kernels = NumbaKernels(threads)
+        try:
+            kernels.warm_up(np.dtype(real_dtype))
+            return kernels
+        except Exception as error:  # numba's typing, lowering and threading-layer errors
+            reason = f"the numba kernels failed to compile or run: {type(error).__name__}: {error}"
+    if choice == "numba":
+        raise KernelsUnavailable(f"{reason}; install numba with pip install \"kindyn[fast]\" or set "
+                                 f"numerics.array_kernels = \"numpy\"")
+    fallback = NumpyKernels()
+    if numba_installed():  # installed but unusable: worth saying; not installed: the user's choice
+        fallback.fallback_reason = reason.splitlines()[0][:200]
+    return fallback

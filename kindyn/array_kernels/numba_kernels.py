@@ -20,6 +20,7 @@ import numpy as np
 from numba import njit, prange
 
 BLOCK = 2048  # entries of the packed axis per parallel chunk in the stage sums
+JIT_ENABLED = not numba.config.DISABLE_JIT  # NUMBA_DISABLE_JIT=1 would run the loops as plain Python
 
 
 @njit(parallel=True, cache=True)
@@ -130,6 +131,28 @@ class NumbaKernels:
     def _threads(self) -> None:
         numba.set_num_threads(self.threads)
 
+    def warm_up(self, real_dtype) -> None:
+        """Compile (or load from the disk cache) every kernel for ``real_dtype`` and its complex type
+        by running it on arrays of a few points, of the same kinds as the solver passes."""
+        real = np.dtype(real_dtype)
+        complex_ = np.result_type(real, np.complex64)
+        line_start = np.array([[0, -1], [2, 4]], dtype=np.int64)  # 3 lines of 2 in a (2, 2, 3) half grid
+        support = _Lines(line_start, 2)
+        packed = np.ones((3, 6), complex_)
+        full = np.empty((3, 2, 2, 3), complex_)
+        self.cross_in_place(tuple(np.ones((1, 2, 2), real) for _ in range(3)), np.ones((3, 2, 2, 2), real))
+        self.spectral_from_band(support, packed, full)
+        self.curl_to_band(support, full, tuple(np.ones(n, real) for n in (2, 2, 3)), packed)
+        self.gather(support, full, packed)
+        stages = np.ones((1, 3, 6), complex_)
+        couplings = self.prepare_couplings([(0, np.ones(6, real))], real, 6)
+        self.stage_sums(np.empty_like(packed), packed, np.ones(6, real), True, np.empty_like(packed), packed,
+                        np.ones(6, real), stages, couplings)
+        self.stage_sums(np.empty_like(packed), packed, np.ones(6, real), False, None, packed, None, stages, None)
+        self.finish_step(full, np.ones((2, 2, 3), real), packed, support)
+        if not np.all(np.isfinite(full)):
+            raise ArithmeticError("numba kernels produced non-finite values on a trial input")
+
     def cross_in_place(self, u, b: np.ndarray) -> None:
         self._threads()
         shape = b.shape[1:]
@@ -181,3 +204,10 @@ class NumbaKernels:
             return self._numpy.finish_step(y, factor, total, support)
         self._threads()
         _finish_step(y, factor, total, support.line_start, support.line_length)
+
+
+class _Lines:
+    """A minimal band description (line table) for :meth:`NumbaKernels.warm_up`."""
+
+    def __init__(self, line_start, line_length):
+        self.line_start, self.line_length = line_start, line_length

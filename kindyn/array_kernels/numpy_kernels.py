@@ -1,7 +1,8 @@
 """The hot-path kernels in plain numpy (one thread), blocked so that operands stay in cache.
 
 Conventions and layouts: :mod:`kindyn.array_kernels`. Each method writes into the arrays it is given;
-the scratch it needs is allocated on first use and kept (one instance per operator or stepper).
+the scratch it needs is allocated on first use and kept (one instance per solver; each method has
+its own scratch).
 """
 
 from __future__ import annotations
@@ -15,6 +16,7 @@ CHUNK = 4096          # entries of the packed axis combined at a time in the sta
 class NumpyKernels:
     name = "numpy"
     threads = 1
+    fallback_reason = ""  # set when "auto" wanted numba but numba could not be used
 
     def __init__(self):
         self._scratch = {}

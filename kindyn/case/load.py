@@ -23,6 +23,12 @@ from kindyn.case import schema
 from kindyn.errors import MISSING, CaseError, ParameterError
 
 
+# Keys that choose how a result is computed but not the arithmetic: the array-kernel sets compute
+# the same operations in the same order (kindyn.array_kernels), so a checkpoint or sweep point made
+# with one set stands for the other.
+NOT_IN_IDENTITY = (("numerics", "array_kernels"),)
+
+
 class Section:
     """Read-only attribute view of one validated section (``case.run.cfl``)."""
 
@@ -79,8 +85,12 @@ class Case:
 
     @property
     def fingerprint(self) -> str:
-        """Hash of :attr:`resolved`: two cases with the same physics and numerics share it."""
-        text = json.dumps(self.resolved, sort_keys=True)
+        """Hash of :attr:`resolved` without the keys of :data:`NOT_IN_IDENTITY`: two cases with the
+        same physics and numerics share it (checkpoints and sweep points are found by it)."""
+        data = self.resolved
+        for section, key in NOT_IN_IDENTITY:
+            data.get(section, {}).pop(key, None)
+        text = json.dumps(data, sort_keys=True)
         return hashlib.sha256(text.encode()).hexdigest()[:16]
 
 

@@ -13,7 +13,7 @@ import re
 from dataclasses import dataclass
 from typing import Callable
 
-from kindyn.array_kernels import KERNEL_SETS, numba_available
+from kindyn.array_kernels import KERNEL_SETS, numba_unavailable_reason
 
 REQUIRED = object()
 
@@ -103,8 +103,9 @@ def choice(*options: str) -> Callable:
 def kernel_set(value):
     """An array-kernel set of :mod:`kindyn.array_kernels`; ``"numba"`` only where numba can be imported."""
     value = choice(*KERNEL_SETS)(value)
-    if value == "numba" and not numba_available():
-        raise ValueError('"auto" or "numpy": numba is not installed here (pip install "kindyn[fast]")')
+    reason = numba_unavailable_reason() if value == "numba" else None
+    if reason:
+        raise ValueError(f'"auto" or "numpy": {reason} (pip install "kindyn[fast]")')
     return value
 
 
@@ -171,8 +172,9 @@ NUMERICS = {
     "planning": Key(choice("estimate", "measure", "patient"), "measure", "FFTW planning effort"),
     "precision": Key(choice("double", "single"), "double", "floating-point precision of the fields"),
     "array_kernels": Key(kernel_set, "auto",
-                   "array kernels of the step beside the FFTs: numba (fused, on `threads` threads; the "
-                   "`fast` extra), numpy, or auto (numba when installed)"),
+                         "array kernels of the step beside the FFTs: numba (fused loops, the `fast` extra; "
+                         "on `threads` threads or one, whichever is measured faster), numpy, or auto "
+                         "(numba when it works here)"),
 }
 
 OUTPUT = {

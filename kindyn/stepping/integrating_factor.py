@@ -37,7 +37,6 @@ import numpy as np
 from kindyn.stepping.tableaux import Tableau
 
 
-
 class BlockSupport:
     """Entries inside disjoint rectangular blocks of the trailing axes of arrays ``(..., *trailing)``.
 
@@ -64,12 +63,12 @@ class BlockSupport:
         self.line_start, self.line_length = self._line_table()
 
     def _line_table(self):
-        """When every block is a set of whole lines along the last axis, all starting at index 0 and
-        of one length ``L``: ``(line_start, L)`` with ``line_start[i, ...]`` the packed offset of the
-        line at the leading trailing indices (``-1``: not in the support). ``(None, 0)`` otherwise.
+        """For three trailing axes whose blocks are all sets of whole lines along the last axis,
+        starting at index 0 and of one length ``L``: ``(line_start, L)`` with ``line_start[i, j]``
+        the packed offset of line ``(i, j)`` (``-1``: not in the support). ``(None, 0)`` otherwise.
         Line-wise array kernels use it to visit the support in one pass."""
         lengths = {shape[-1] for shape in self.shapes}
-        if not self.blocks or len(lengths) != 1 or len(self.trailing_shape) < 2:
+        if not self.blocks or len(lengths) != 1 or len(self.trailing_shape) != 3:
             return None, 0
         line_start = np.full(self.trailing_shape[:-1], -1, dtype=np.int64)
         for block, shape, offset in zip(self.blocks, self.shapes, self.offsets):
