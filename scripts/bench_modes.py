@@ -20,6 +20,8 @@ import time
 
 import numpy as np
 
+from kindyn.array_kernels import configure_openmp_wait
+
 
 def time_per_step(stepper, y, dt, steps) -> float:
     stepper.step(0.0, y, dt)  # warm-up (velocity sampling, exponential factors)
@@ -86,6 +88,7 @@ def main() -> None:
     parser.add_argument("--skip-2d", action="store_true", help="skip part (i)")
     parser.add_argument("--skip-eigen", action="store_true", help="skip part (ii)")
     args = parser.parse_args()
+    configure_openmp_wait()  # as the kindyn command does, before pyfftw or numba start their threads
     from threadpoolctl import threadpool_limits
 
     with threadpool_limits(limits=1, user_api="blas"):
