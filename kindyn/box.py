@@ -37,6 +37,13 @@ def max_kept_mode(n: int) -> int:
     return (n - 1) // 3
 
 
+def kept_index_ranges(n: int) -> list[slice]:
+    """Indices (FFT order) of an ``n``-point axis that the 2/3 rule keeps, as contiguous ranges:
+    modes ``0 .. m`` and ``-m .. -1`` with ``m = max_kept_mode(n)`` (one range when ``m = 0``)."""
+    m = max_kept_mode(n)
+    return [slice(0, m + 1)] + ([slice(n - m, n)] if m > 0 else [])
+
+
 @dataclass(frozen=True)
 class Box:
     """Triply periodic box ``[0, Lx) x [0, Ly) x [0, Lz)`` sampled on an ``nx x ny x nz`` grid."""

@@ -31,6 +31,7 @@ from __future__ import annotations
 
 import numpy as np
 
+from kindyn.box import kept_index_ranges
 from kindyn.errors import FlowError
 from kindyn.array_kernels.numpy_kernels import NumpyKernels
 from kindyn.stepping.integrating_factor import BlockSupport
@@ -40,15 +41,12 @@ def band_blocks(box) -> list[tuple[slice, ...]]:
     """The 2/3-rule band of the half grid as disjoint rectangular blocks of whole z lines.
 
     Returns index tuples over ``(x, y, z)`` of the half grid whose union is ``box.dealias_mask``:
-    kept x ranges (FFT order ``0..m_x`` and ``n_x-m_x..n_x-1``) times kept y ranges, with
-    ``m_z = 0..max`` along z.
+    kept x ranges times kept y ranges (:func:`kindyn.box.kept_index_ranges`), with ``m_z = 0..max``
+    along z.
     """
-    (nx, ny, _), (mx, my, mz) = box.grid, box.max_kept_modes
-
-    def ranges(n, m):
-        return [slice(0, m + 1)] + ([slice(n - m, n)] if m > 0 else [])
-
-    return [(x, y, slice(0, mz + 1)) for x in ranges(nx, mx) for y in ranges(ny, my)]
+    nx, ny, _ = box.grid
+    z_kept = slice(0, box.max_kept_modes[2] + 1)
+    return [(x, y, z_kept) for x in kept_index_ranges(nx) for y in kept_index_ranges(ny)]
 
 
 class InductionOperator:
@@ -77,7 +75,7 @@ class InductionOperator:
         # the pyfftw engine can skip the 1/N pass of its forward transform; other engines normalise
         self._unnormalised = getattr(engine, "unnormalised_forward", False)
         scale = 1.0 / box.points if self._unnormalised else 1.0
-        self._curl_wavenumbers = tuple((np.ravel(k) * scale).astype(real_dtype) for k in box.wavenumbers)
+        self._curl_wavenumbers = tuple((k * scale).astype(real_dtype) for k in box.wavenumbers)
         self._components, self._components_time = None, None  # u_x, u_y, u_z as the flow returns them
         self._last_stage_time = None  # for renovating flows, see _evaluation_time
         self._band_in = self._band_out = None  # for __call__ only

@@ -168,7 +168,7 @@ class NumbaKernels:
         if support.line_start is None:
             return self._numpy.curl_to_band(support, e_hat, wavenumbers, out)
         self._threads()
-        kx, ky, kz = (np.ascontiguousarray(np.ravel(w)) for w in wavenumbers)
+        kx, ky, kz = (np.ravel(w) for w in wavenumbers)  # (nx,1,1) etc.: contiguous 1-D views
         _curl_to_band(e_hat, kx, ky, kz, support.line_start, support.line_length, out)
 
     def gather(self, support, full: np.ndarray, out: np.ndarray) -> np.ndarray:

@@ -57,13 +57,13 @@ class NumpyKernels:
             np.copyto(view, values)
 
     def curl_to_band(self, support, e_hat: np.ndarray, wavenumbers, out: np.ndarray) -> None:
-        """``out <- i k x e_hat`` on the band, packed (``wavenumbers``: real 1-D ``k_x, k_y, k_z``, any
-        factor such as ``1/N`` folded in)."""
-        kx, ky, kz = wavenumbers
+        """``out <- i k x e_hat`` on the support, packed (``e_hat`` ``(3, *trailing)``; ``wavenumbers``:
+        real ``k_x, k_y, k_z`` broadcastable to the trailing shape, or plain numbers, with any factor
+        such as ``1/N`` folded in)."""
         tmp_ = self._buffer("curl", (max(support.sizes, default=1),), out.dtype)
-        for (xs, ys, zs), o in zip(support.blocks, support.packed_views(out)):
-            e = e_hat[:, xs, ys, zs]
-            ikx, iky, ikz = 1j * kx[xs, None, None], 1j * ky[None, ys, None], 1j * kz[None, None, zs]
+        for block, o in zip(support.blocks, support.packed_views(out)):
+            e = e_hat[(slice(None), *block)]
+            ikx, iky, ikz = (1j * _on_block(k, block) for k in wavenumbers)
             tmp = tmp_[: o[0].size].reshape(o.shape[1:])
             for i, (ka, a, kb, c) in enumerate(((iky, 2, ikz, 1), (ikz, 0, ikx, 2), (ikx, 1, iky, 0))):
                 np.multiply(e[a], ka, out=o[i])
@@ -119,3 +119,10 @@ class NumpyKernels:
             y += total.reshape(y.shape)
         else:
             support.add_to(total, y)
+
+
+def _on_block(k, block):
+    """A broadcastable array (or a number) restricted to a block: slice only its axes of full length."""
+    if np.ndim(k) == 0:
+        return k
+    return k[tuple(s if n > 1 else slice(None) for s, n in zip(block, np.shape(k)))]

@@ -26,7 +26,7 @@ from functools import cached_property
 
 import numpy as np
 
-from kindyn.box import fft_mode_numbers, kept_by_two_thirds, max_kept_mode
+from kindyn.box import fft_mode_numbers, kept_by_two_thirds, kept_index_ranges, max_kept_mode
 from kindyn.calculus import cross
 from kindyn.errors import FlowError
 from kindyn.array_kernels import make_kernels
@@ -125,18 +125,10 @@ def is_z_independent(flow, box, times=None, rtol: float = 1e-12) -> bool:
     return bool(independent)
 
 
-def planar_band_blocks(grid: PlanarGrid) -> tuple[list, list]:
-    """The 2/3-rule band of the plane as rectangular blocks ``(x slice, y slice)``, and its complement."""
-    (nx, ny) = grid.grid
-    mx, my = ((n - 1) // 3 for n in grid.grid)
-
-    def ranges(n, m):  # kept indices of FFT order 0..m and n-m..n-1, and the dropped middle
-        return [slice(0, m + 1)] + ([slice(n - m, n)] if m > 0 else []), slice(m + 1, n - m)
-
-    (xs, x_mid), (ys, y_mid) = ranges(nx, mx), ranges(ny, my)
-    kept = [(x, y) for x in xs for y in ys]
-    dropped = [(x_mid, slice(None))] + [(x, y_mid) for x in xs]
-    return kept, dropped
+def planar_band_blocks(grid: PlanarGrid) -> list[tuple[slice, slice]]:
+    """The 2/3-rule band of the plane as disjoint rectangular blocks ``(x slice, y slice)``."""
+    nx, ny = grid.grid
+    return [(x, y) for x in kept_index_ranges(nx) for y in kept_index_ranges(ny)]
 
 
 class PlanarInductionOperator:
@@ -145,24 +137,22 @@ class PlanarInductionOperator:
     :attr:`decay_rates` is ``eta |q|^2`` (shape ``(nx, ny)``), handed to the stepper. Like
     :class:`kindyn.induction.InductionOperator` it offers ``support`` and :meth:`packed`, so that the
     stepper advances only the values inside the 2/3-rule band; the ``1/(nx ny)`` of the forward
-    transform is folded into the curl coefficients ``i q/(nx ny)``.
+    transform is folded into the curl coefficients ``q/(nx ny)``. The band scatter and the curl are
+    the block-wise array kernels of ``kernels`` (:mod:`kindyn.array_kernels`; numpy by default).
     """
 
-    def __init__(self, grid: PlanarGrid, flow, engine, eta: float):
+    def __init__(self, grid: PlanarGrid, flow, engine, eta: float, kernels=None):
         self.grid, self.flow, self.engine, self.eta = grid, flow, engine, float(eta)
+        self.kernels = kernels if kernels is not None else make_kernels("numpy")
         self.decay_rates = self.eta * grid.k_squared
-        self.mask = grid.dealias_mask.astype(float)
-        kept, self._dropped = planar_band_blocks(grid)
-        self.support = BlockSupport(kept, grid.shape)
-        kx, ky, kz = grid.wavenumbers
+        self.support = BlockSupport(planar_band_blocks(grid), grid.shape)
         scale = 1.0 / (grid.shape[0] * grid.shape[1])
-        self._ik_blocks = [(1j * scale * kx[bx, :], 1j * scale * ky[:, by], 1j * scale * kz)
-                           for bx, by in self.support.blocks]
+        self._curl_wavenumbers = tuple(k * scale for k in grid.wavenumbers)  # (nx,1), (1,ny), k_z
         shape = grid.shape
         self._velocity = np.empty((3, *shape))
         self._field = np.empty((3, *shape), complex)
         self._scratch = np.empty(shape, complex)
-        self._scratch_hat = np.empty(max(self.support.sizes), complex)
+        self._band_in = self._band_out = None  # for __call__ only
         self._velocity_time = None
         self.evaluations = 0
 
@@ -173,24 +163,19 @@ class PlanarInductionOperator:
         return self._velocity
 
     def __call__(self, t: float, b_hat: np.ndarray, out: np.ndarray) -> np.ndarray:
-        """Write ``N(t, b_hat)`` for full ``(3, nx, ny)`` arrays into ``out`` (zero outside the band)."""
-        np.copyto(self.engine.spectral, b_hat)
-        self._emf_hat(t)
-        for block in self._dropped:
-            out[(slice(None), *block)] = 0
-        self._curl_on_blocks(self.support.full_views(out))
-        self.evaluations += 1
-        return out
+        """Write ``N(t, b_hat)`` for the band part of full ``(3, nx, ny)`` arrays into ``out`` (zero
+        outside the band)."""
+        if self._band_in is None:
+            self._band_in, self._band_out = (np.empty((3, self.support.size), complex) for _ in range(2))
+        self.packed(t, self.support.gather(b_hat, self._band_in), self._band_out)
+        out.fill(0)
+        return self.support.add_to(self._band_out, out)
 
     def packed(self, t: float, b_band: np.ndarray, out: np.ndarray) -> np.ndarray:
         """As ``__call__`` on band values packed as :attr:`support` describes (``(3, support.size)``)."""
-        spectral = self.engine.spectral
-        for view, values in zip(self.support.full_views(spectral), self.support.packed_views(b_band)):
-            np.copyto(view, values)
-        for block in self._dropped:
-            spectral[(slice(None), *block)] = 0
+        self.kernels.spectral_from_band(self.support, b_band, self.engine.spectral)
         self._emf_hat(t)
-        self._curl_on_blocks(self.support.packed_views(out))
+        self.kernels.curl_to_band(self.support, self.engine.spectral, self._curl_wavenumbers, out)
         self.evaluations += 1
         return out
 
@@ -201,16 +186,6 @@ class PlanarInductionOperator:
         np.copyto(self._field, engine.physical)
         cross(self.velocity(t), self._field, out=engine.physical, scratch=self._scratch)
         engine.forward(normalise=False)
-
-    def _curl_on_blocks(self, outs) -> None:
-        e_hat = self.engine.spectral
-        for block, out, (ikx, iky, ikz) in zip(self.support.blocks, outs, self._ik_blocks):
-            e = e_hat[(slice(None), *block)]
-            tmp = self._scratch_hat[: out[0].size].reshape(out.shape[1:])
-            for i, (ka, a, kb, b) in enumerate(((iky, 2, ikz, 1), (ikz, 0, ikx, 2), (ikx, 1, iky, 0))):
-                np.multiply(e[a], ka, out=out[i])
-                np.multiply(e[b], kb, out=tmp)
-                out[i] -= tmp
 
 
 @dataclass
@@ -229,9 +204,10 @@ def build_planar_solver(grid: PlanarGrid, flow, eta: float, scheme: str = "rk4",
     plane (stage sums by the array kernels named ``array_kernels``, see :mod:`kindyn.array_kernels`,
     on one thread: they are a small part of the planar step)."""
     engine = make_planar_engine(grid.grid, 3, engine, threads, planning)
-    operator = PlanarInductionOperator(grid, flow, engine, eta)
+    kernels = make_kernels(array_kernels)
+    operator = PlanarInductionOperator(grid, flow, engine, eta, kernels)
     stepper = IntegratingFactorStepper(operator, operator.decay_rates, TABLEAUX[scheme],
-                                       engine.spectral.shape, engine.spectral.dtype, make_kernels(array_kernels))
+                                       engine.spectral.shape, engine.spectral.dtype, kernels)
     return PlanarSolver(grid, engine, operator, stepper)
 
 
