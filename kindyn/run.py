@@ -71,6 +71,7 @@ class RunOutcome:
     resumed: bool
     u_rms: float  # rms speed of the flow at t = 0 on the grid
     array_kernels: str = ""  # the kernel set and threads the solver chose, e.g. "numba, 2 threads"
+    array_kernels_note: str = ""  # why "auto" could not use numba here ("" when it could, or was not installed)
 
 
 @dataclass
@@ -86,9 +87,7 @@ class Solver:
     def kernels_used(self) -> str:
         """The array-kernel set and its threads, as chosen when the solver was built."""
         kernels = self.operator.kernels
-        used = f"{kernels.name}, {kernels.threads} thread{'s' if kernels.threads != 1 else ''}"
-        reason = getattr(kernels, "fallback_reason", "")
-        return f"{used} ({reason})" if reason else used
+        return f"{kernels.name}, {kernels.threads} thread{'s' if kernels.threads != 1 else ''}"
 
 
 def build_solver(box, flow, eta: float, transforms: TransformSettings, scheme: str = "rk4") -> Solver:
@@ -194,7 +193,8 @@ def run_growth(case, progress=None, checkpoint=None) -> RunOutcome:
     return RunOutcome(estimate, record, b_hat, field, shell_spectrum(b_hat, box), ratio,
                       ratio > settings.resolution_threshold, step, t, timing, stop_reason,
                       wallclock.time() - started, bool(state),
-                      _rms_speed(flow, box), solver.kernels_used)
+                      _rms_speed(flow, box), solver.kernels_used,
+                      solver.operator.kernels.fallback_reason)
 
 
 def _rms_speed(flow, box) -> float:

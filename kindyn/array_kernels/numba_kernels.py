@@ -121,12 +121,14 @@ def _finish_step(y, factor, total, line_start, length):
 
 class NumbaKernels:
     name = "numba"
+    fallback_reason = ""  # as in the numpy set: this set is what was asked for
 
     def __init__(self, threads: int = 1):
         from kindyn.array_kernels.numpy_kernels import NumpyKernels
 
         self.threads = max(1, min(int(threads), numba.config.NUMBA_NUM_THREADS))
         self._numpy = NumpyKernels()  # for layouts the line-wise loops do not cover
+        self._empty = {}
 
     def _threads(self) -> None:
         numba.set_num_threads(self.threads)
@@ -186,12 +188,20 @@ class NumbaKernels:
             row[...] = w
         return slots, weights
 
+    def _placeholders(self, dtype):
+        """Empty arrays standing for the absent operands of :meth:`stage_sums` (made once per dtype)."""
+        if dtype not in self._empty:
+            real = np.empty(0, dtype).real.dtype
+            self._empty[dtype] = (np.empty((0, 0), dtype), np.empty(0, real),
+                                  (np.empty(0, np.int64), np.empty((0, 0), real)))
+        return self._empty[dtype]
+
     def stage_sums(self, total, k, final, first: bool, stage, start, start_factor, stages, couplings) -> None:
         self._threads()
         some = k if k is not None else stage
-        size, real = some.shape[-1], some.real.dtype
-        no_complex, no_real = np.empty((0, 0), some.dtype), np.empty(0, real)
-        slots, weights = couplings if stage is not None else (np.empty(0, np.int64), np.empty((0, 0), real))
+        size = some.shape[-1]
+        no_complex, no_real, no_couplings = self._placeholders(some.dtype)
+        slots, weights = couplings if stage is not None else no_couplings
         _stage_sums(size,
                     total, no_complex if k is None else k, no_real if final is None else final,
                     k is not None, bool(first),

@@ -41,8 +41,9 @@ def execute(args) -> int:
     summary, caution = record_growth_run(nc_path, case, outcome)
     if caution:
         say(f"kindyn run: warning: {caution}")
-    if "(" in outcome.array_kernels:  # "numpy, 1 thread (why numba could not be used)"
-        say(f"kindyn run: note: array kernels {outcome.array_kernels}; results are the same, only slower")
+    if outcome.array_kernels_note:
+        say(f"kindyn run: note: array kernels {outcome.array_kernels} ({outcome.array_kernels_note}); "
+            f"results are the same, only slower")
     if case.output.figure:
         from kindyn.output.figures import growth_figure
 

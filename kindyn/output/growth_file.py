@@ -42,6 +42,7 @@ def result_summary(case, outcome) -> dict:
         "wall_seconds": outcome.wall_seconds,
         "resumed": outcome.resumed,
         "array_kernels": outcome.array_kernels,
+        "array_kernels_note": outcome.array_kernels_note,
     }
 
 

@@ -128,6 +128,8 @@ class IntegratingFactorStepper:
         self._sum = np.empty(work_shape, dtype)
         self._packed_y = None if self.support is None else np.empty(work_shape, dtype)
         self._first_final = next((i for i, bi in enumerate(tableau.b) if bi != 0.0), None)
+        # stage i needs assembling unless Y_i = y_n (c_i = 0 and no a_ij)
+        self._assembles = [ci != 0.0 or any(a != 0.0 for a in row) for ci, row in zip(tableau.c, tableau.a)]
         self._h = None
 
     def _weights(self, h: float):
@@ -143,8 +145,6 @@ class IntegratingFactorStepper:
             self._couplings = [self.kernels.prepare_couplings(
                 [(self._slot_of[j], factor(ci - tab.c[j], h * aij)) for j, aij in enumerate(tab.a[i]) if aij != 0.0],
                 rates.dtype, rates.size) for i, ci in enumerate(tab.c)]
-            self._assembles = [self._stage_factor[i] is not None or any(a != 0.0 for a in tab.a[i])
-                               for i in range(tab.stages)]
             self._final = [None if bi == 0.0 else factor(1.0 - ci, h * bi) for ci, bi in zip(tab.c, tab.b)]
             self._decay = np.exp(-self.rates.astype(np.float64) * h).astype(self.rates.dtype)
             self._h = h
