@@ -1,5 +1,11 @@
-"""Case files: TOML -> validated frozen :class:`Case` (see :mod:`kindyn.case.load`)."""
+"""Case files: TOML -> validated frozen dataclasses.
 
-from kindyn.case.load import Case, load_case, parse_override
+:func:`read_config` validates a case into a :class:`CaseConfig` (one frozen dataclass per section,
+see :mod:`kindyn.case.sections`) without building anything; :func:`load_case` also builds the box,
+the flow, eta and Rm into a :class:`Case` (see :mod:`kindyn.case.load`).
+"""
 
-__all__ = ["Case", "load_case", "parse_override"]
+from kindyn.case.config import CaseConfig, parse_override, read_config
+from kindyn.case.load import Case, load_case
+
+__all__ = ["Case", "CaseConfig", "load_case", "parse_override", "read_config"]

@@ -1,20 +1,28 @@
-"""All case sections: the core key tables and the sections of the other commands.
+"""All case sections: the section dataclasses by name.
 
-``SECTIONS`` maps a section name to its key table (see :mod:`kindyn.case.schema`);
-``FREEFORM_SECTIONS`` maps a section to a validator ``(raw dict or None, file) -> object`` for
-sections whose keys are not fixed (the swept keys of ``[sweep]``).
+``SECTIONS`` maps a section name to its frozen dataclass (a :class:`~kindyn.case.schema.SectionConfig`,
+whose fields declare the keys); ``FREEFORM_SECTIONS`` maps a section to a validator
+``(raw dict or None, file) -> frozen object with as_dict()`` for sections whose keys are not fixed
+(the swept keys of ``[sweep]``). Every name here is a field of :class:`kindyn.case.config.CaseConfig`.
 
-This is the one place where the case layer reaches into the command packages: each registers the
-key table that lives beside the code that uses it. The settings modules import only the case
-schema and the errors, never the packages' solvers.
+The case package sits below the commands: the sections of the eigen-solver, the test fields and the
+sweeps are defined here in the case package, and those packages import them, never the reverse.
 """
 
 from __future__ import annotations
 
-from kindyn.case import schema
-from kindyn.eigen.settings import MODES
-from kindyn.sweep.spec import validate_sweep
-from kindyn.testfield.settings import TESTFIELD_KEYS
+from kindyn.case.modes_section import ModesConfig
+from kindyn.case.schema import DomainConfig, MagneticConfig, NumericsConfig, OutputConfig, RunConfig, SectionConfig
+from kindyn.case.sweep_section import validate_sweep
+from kindyn.case.testfield_section import TestfieldConfig
 
-SECTIONS = {**schema.SECTIONS, "testfield": TESTFIELD_KEYS, "modes": MODES}
+SECTIONS: dict[str, type[SectionConfig]] = {
+    "domain": DomainConfig,
+    "magnetic": MagneticConfig,
+    "run": RunConfig,
+    "numerics": NumericsConfig,
+    "output": OutputConfig,
+    "testfield": TestfieldConfig,
+    "modes": ModesConfig,
+}
 FREEFORM_SECTIONS: dict = {"sweep": validate_sweep}

@@ -1,10 +1,11 @@
-"""The ``[testfield]`` case section: keys, defaults, meanings, and their check against the box.
+"""The ``[testfield]`` case section checked against the box.
 
-The key table :data:`TESTFIELD_KEYS` is registered in :mod:`kindyn.case.sections`; the loader checks
-types. :func:`plan_from_case` then checks what needs the box and the flow (test-field wavenumbers
-that fit the box and survive dealiasing) and returns a frozen :class:`TestFieldPlan`, raising
-:class:`~kindyn.errors.CaseError` with file, key, value and what is expected — before any
-computation. Time stepping reuses ``[run] scheme``, ``cfl`` and ``time_step``.
+The keys, their types and defaults are :class:`~kindyn.case.testfield_section.TestfieldConfig` in
+the case package (the loader checks types there). :func:`plan_from_case` then checks what needs the
+box and the flow (test-field wavenumbers that fit the box and survive dealiasing) and returns a
+frozen :class:`TestFieldPlan`, raising :class:`~kindyn.errors.CaseError` with file, key, value and
+what is expected — before any computation. Time stepping reuses ``[run] scheme``, ``cfl`` and
+``time_step``.
 """
 
 from __future__ import annotations
@@ -12,44 +13,10 @@ from __future__ import annotations
 import math
 from dataclasses import dataclass
 
-from kindyn.case.schema import Key, boolean, list_of, choice, non_negative, positive, positive_integer
+from kindyn.case.testfield_section import AXES, TESTFIELD_KEYS, TestfieldConfig
 from kindyn.errors import CaseError
 
-AXES = ("x", "y", "z")
-
-
-TESTFIELD_KEYS = {
-    "axis": Key(choice(*AXES), "z",
-                "averaging axis: mean fields depend on this coordinate only (planar averages over the other two)"),
-    "modes": Key(list_of(positive_integer, "whole numbers >= 1"), None,
-                 "test-field wavenumbers as mode numbers m along the axis, K = 2 pi m / L_axis (default [1])"),
-    "wavenumbers": Key(list_of(positive, "positive numbers"), None,
-                       "test-field wavenumbers K (whole multiples of 2 pi / L_axis); give modes or wavenumbers"),
-    "uniform": Key(boolean, True, "also solve the three uniform test fields (the full 3x3 alpha, box average)"),
-    "method": Key(choice("auto", "direct", "time"), "auto",
-                  "auto: direct steady solves for steady flows, time stepping otherwise; "
-                  "direct: steady solves (steady flows only); time: time stepping"),
-    "reset_interval": Key(positive, None,
-                          "time between resets of the test solutions to zero (rounded up to whole blocks); "
-                          "default: never reset"),
-    "settle_time": Key(non_negative, None,
-                       "time after the start and after each reset excluded from averages "
-                       "(default 5/(eta k_f^2), at most half the reset interval)"),
-    "block_length": Key(positive, None,
-                        "averaging block (default: one flow period for periodic flows, else 10/(U k_f)); "
-                        "rounded to whole periods for periodic flows"),
-    "tolerance": Key(positive, 1e-3,
-                     "stop when every standard error (change, for steady flows) is below tolerance * U "
-                     "(alpha) and tolerance * U/k_f (eta)"),
-    "min_time": Key(non_negative, 0.0, "never stop the time stepping before this time"),
-    "max_time": Key(positive, None, "stop the time stepping here even if not converged (default: settle + 200 blocks)"),
-    "samples_per_period": Key(positive_integer, 32, "EMF samples per flow period (or per block) for time averages"),
-    "solver_tolerance": Key(positive, 1e-11, "relative residual of the iterative steady solve (GMRES)"),
-    "onset_check": Key(boolean, True,
-                       "before direct steady solves, check that no test problem has a growing homogeneous mode"),
-    "closure": Key(boolean, False,
-                   "compare the mean-field growth rate at the box scale with a direct run (kindyn run)"),
-}
+__all__ = ["AXES", "TESTFIELD_KEYS", "TestFieldPlan", "TestfieldConfig", "plan_from_case"]
 
 
 @dataclass(frozen=True)
@@ -90,7 +57,8 @@ class TestFieldPlan:
 
 def plan_from_case(case) -> TestFieldPlan:
     """Resolve and check the ``[testfield]`` section of ``case`` (see module docstring)."""
-    s, file, box, flow = case.testfield, case.path, case.box, case.flow
+    s: TestfieldConfig = case.testfield
+    file, box, flow = case.path, case.box, case.flow
     axis = AXES.index(s.axis)
     length = box.lengths[axis]
     base = 2 * math.pi / length

@@ -1,0 +1,223 @@
+"""Read a TOML case file into a validated, frozen :class:`CaseConfig`, without building anything.
+
+Every problem raises :class:`~kindyn.errors.CaseError` naming the file, the dotted key, the bad
+value and what is expected. ``--set section.key=value`` overrides are applied to the parsed TOML
+(values typed as TOML; a bare word is taken as a string) before validation, so they are checked
+exactly like the file; an error in an overridden key names the override, not the file.
+
+:func:`read_config` checks every section against its dataclass (:mod:`kindyn.case.sections`) and
+the ``[flow]`` table against the flow registry (type known; for flows built from their dataclass
+fields, the keys known and typed). It builds neither the box nor the flow (that is
+:func:`kindyn.case.load.load_case`), and imports nothing heavier than numpy and the registries.
+"""
+
+from __future__ import annotations
+
+import contextlib
+import dataclasses
+import tomllib
+import typing
+from collections.abc import Mapping
+from dataclasses import dataclass
+from pathlib import Path
+from types import MappingProxyType
+
+from kindyn.case import schema
+from kindyn.case.modes_section import ModesConfig
+from kindyn.case.schema import DomainConfig, MagneticConfig, NumericsConfig, OutputConfig, RunConfig
+from kindyn.case.sections import FREEFORM_SECTIONS, SECTIONS
+from kindyn.case.sweep_section import SweepSpec
+from kindyn.case.testfield_section import TestfieldConfig
+from kindyn.errors import MISSING, CaseError
+
+
+@dataclass(frozen=True, kw_only=True)
+class CaseConfig:
+    """A validated case file: every section, and the ``[flow]`` table (type and parameters).
+
+    ``flow_params`` are the ``[flow]`` keys without ``type``: converted to the types of the flow
+    dataclass's fields, or as written for flows that validate their own table when built
+    (``from_case``, see :func:`kindyn.flows.make_flow`).
+    """
+
+    path: str
+    text: str
+    overrides: tuple[str, ...]
+    domain: DomainConfig
+    magnetic: MagneticConfig
+    run: RunConfig
+    numerics: NumericsConfig
+    output: OutputConfig
+    testfield: TestfieldConfig
+    modes: ModesConfig
+    sweep: SweepSpec
+    flow_type: str
+    flow_params: dict
+
+    @property
+    def name(self) -> str:
+        """Base name of the output files: ``[output] name``, else the case file's stem."""
+        return self.output.name if self.output.name else Path(self.path).stem
+
+    @property
+    def sections(self) -> Mapping[str, object]:
+        """Section name -> validated section, in the order of :data:`kindyn.case.sections.SECTIONS`
+        (then the free-form sections); a read-only view built from the fields."""
+        return MappingProxyType({name: getattr(self, name) for name in (*SECTIONS, *FREEFORM_SECTIONS)})
+
+
+def parse_override(text: str, file: str = "--set") -> tuple[list[str], object]:
+    """``"section.key=value"`` -> (``["section", "key"]``, typed value)."""
+    if "=" not in text:
+        raise CaseError(file, text, MISSING, "an override written section.key=value")
+    key, raw = text.split("=", 1)
+    parts = _key_path(key.strip())
+    if parts is None or len(parts) < 2 or not all(parts):
+        raise CaseError(file, key.strip(), raw, "a dotted key section.key (quote keys that contain dots: "
+                                               'sweep."magnetic.Rm")')
+    try:
+        value = tomllib.loads(f"v = {raw.strip()}")["v"]
+    except tomllib.TOMLDecodeError:
+        value = raw.strip()
+    return parts, value
+
+
+def _key_path(key: str) -> list[str] | None:
+    """The parts of a TOML dotted key (``sweep."magnetic.Rm"`` -> ``["sweep", "magnetic.Rm"]``)."""
+    try:
+        node = tomllib.loads(f"{key} = 0")
+    except tomllib.TOMLDecodeError:
+        return None
+    parts = []
+    while isinstance(node, dict) and len(node) == 1:
+        (name, node), = node.items()
+        parts.append(name)
+    return parts if node == 0 else None
+
+
+EXCLUSIVE_KEYS = {("magnetic", "eta"): ("magnetic", "Rm"), ("magnetic", "Rm"): ("magnetic", "eta")}
+
+
+def apply_overrides(data: dict, overrides) -> dict:
+    """Apply ``section.key=value`` overrides; setting eta drops Rm from the file and vice versa."""
+    for text in overrides:
+        parts, value = parse_override(text)
+        rival = EXCLUSIVE_KEYS.get(tuple(parts))
+        if rival and isinstance(data.get(rival[0]), dict):
+            data[rival[0]].pop(rival[1], None)
+        node = data
+        for part in parts[:-1]:
+            node = node.setdefault(part, {})
+            if not isinstance(node, dict):
+                raise CaseError("--set", ".".join(parts), value, f"{'.'.join(parts[:-1])} to be a section")
+        node[parts[-1]] = value
+    return data
+
+
+def read_toml(path) -> tuple[str, dict]:
+    path = Path(path)
+    try:
+        text = path.read_text(encoding="utf-8")
+    except FileNotFoundError:
+        raise CaseError(str(path), "", MISSING, "an existing case file (not found)") from None
+    except (OSError, UnicodeDecodeError) as exc:
+        raise CaseError(str(path), "", MISSING, f"a readable UTF-8 TOML file ({exc})") from None
+    try:
+        return text, tomllib.loads(text)
+    except tomllib.TOMLDecodeError as exc:
+        raise CaseError(str(path), "", MISSING, f"valid TOML ({exc})") from None
+
+
+def read_config(path, overrides=(), text: str | None = None) -> CaseConfig:
+    """Read, override and validate a case file (``text``: its content, already read)."""
+    if text is None:
+        text, data = read_toml(path)
+    else:
+        data = tomllib.loads(text)
+    data = apply_overrides(data, overrides)
+    return validate_config(data, str(path), text, tuple(overrides))
+
+
+@contextlib.contextmanager
+def naming_overrides(file: str, overrides):
+    """An error in a key set by ``--set`` names the override (``--set (over FILE)``), not the file."""
+    try:
+        yield
+    except CaseError as exc:
+        overridden = {".".join(parse_override(o)[0]) for o in overrides}
+        if exc.key in overridden:
+            raise CaseError(f"--set (over {file})", exc.key, exc.value, exc.expected) from None
+        raise
+
+
+def validate_config(data: dict, file: str, text: str = "", overrides=()) -> CaseConfig:
+    """Validate parsed TOML (overrides already applied) into a :class:`CaseConfig`."""
+    with naming_overrides(file, overrides):
+        return _validate(data, file, text, tuple(overrides))
+
+
+def _validate(data: dict, file: str, text: str, overrides: tuple[str, ...]) -> CaseConfig:
+    known = set(SECTIONS) | set(FREEFORM_SECTIONS) | {"flow"}
+    for name, value in data.items():
+        if name not in known:
+            raise CaseError(file, name, "[section]", "a known section: " + ", ".join(sorted(known)))
+        if not isinstance(value, dict):
+            raise CaseError(file, name, value, f"[{name}] to be a table of keys")
+    sections = {name: schema.build_section(cls, data.get(name, {}), name, file) for name, cls in SECTIONS.items()}
+    for name, validator in FREEFORM_SECTIONS.items():
+        sections[name] = validator(data.get(name), file)
+    flow_type, flow_params = validate_flow_table(data.get("flow"), file)
+    check_one_diffusivity(sections["magnetic"], file)
+    return CaseConfig(path=file, text=text, overrides=overrides, **sections,
+                      flow_type=flow_type, flow_params=flow_params)
+
+
+def check_one_diffusivity(magnetic: MagneticConfig, file: str) -> None:
+    """Exactly one of ``magnetic.eta`` and ``magnetic.Rm`` (the other follows from the flow's U, k_f)."""
+    eta, Rm = magnetic.eta, magnetic.Rm
+    if (eta is None) == (Rm is None):
+        raise CaseError(file, "magnetic.eta" if eta is not None else "magnetic", eta if eta is not None else MISSING,
+                        "exactly one of magnetic.eta and magnetic.Rm")
+
+
+def validate_flow_table(raw, file: str) -> tuple[str, dict]:
+    """The ``[flow]`` table -> (type, parameters): the type must be registered; a flow built from
+    its dataclass fields gets its keys checked and converted to the fields' types."""
+    from kindyn.flows import FLOW_TYPES
+
+    if raw is None:
+        raise CaseError(file, "flow", MISSING, "a [flow] section with a type")
+    params = dict(raw)
+    flow_type = params.pop("type", MISSING)
+    if flow_type not in FLOW_TYPES:
+        raise CaseError(file, "flow.type", flow_type, "one of " + ", ".join(f'"{t}"' for t in FLOW_TYPES))
+    cls = FLOW_TYPES[flow_type]
+    if not hasattr(cls, "from_case"):
+        hints = typing.get_type_hints(cls)
+        allowed = [f.name for f in dataclasses.fields(cls)]
+        for key, value in params.items():
+            if key not in allowed:
+                raise CaseError(file, f"flow.{key}", value,
+                                f"a parameter of the {flow_type} flow: " + ", ".join(allowed))
+            params[key] = _convert_field(value, hints[key], key, file)
+    return flow_type, params
+
+
+def _convert_field(value, annotation, key, file):
+    text = str(annotation)
+    try:
+        if "tuple" in text:
+            if not isinstance(value, list) or not value:
+                raise ValueError("a non-empty list of numbers")
+            return tuple(schema.number(v) for v in value)
+        if text in ("float", "<class 'float'>"):
+            return schema.number(value)
+        if text in ("int", "<class 'int'>"):
+            return schema.integer(value)
+        if text in ("str", "<class 'str'>"):
+            return schema.string(value)
+        if text in ("bool", "<class 'bool'>"):
+            return schema.boolean(value)
+    except ValueError as exc:
+        raise CaseError(file, f"flow.{key}", value, str(exc)) from None
+    return value
