@@ -149,10 +149,3 @@ def test_closure_check_reports_mean_field_and_direct_growth_rates(write_case, tm
         abs(c["mean_field_growth_rate"] - c["direct_growth_rate"]) / abs(c["direct_growth_rate"]), rel=1e-12)
     assert c["scale_separation"] == 2.0 and c["direct_box_scale_mean_share"] > 0.5
 
-
-def test_rm_figure_writes_a_png(tmp_path):
-    from kindyn.output.figures_testfield import coefficients_versus_Rm
-
-    Rm = np.array([0.5, 1.0, 2.0])
-    coefficients_versus_Rm(tmp_path / "rm.png", Rm, -Rm / (1 + Rm ** 2), [0.01] * 3, Rm / 2, None, -Rm, Rm / 2, "t")
-    assert (tmp_path / "rm.png").stat().st_size > 1000

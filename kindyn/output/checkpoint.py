@@ -9,10 +9,9 @@ from __future__ import annotations
 
 from pathlib import Path
 
-import netCDF4
 import numpy as np
 
-from kindyn.output.netcdf import atomic_dataset
+from kindyn.output.netcdf import atomic_dataset, read_dataset
 
 _SERIES = ("times", "log_energy", "log_amplitude", "estimate_times", "estimate_rates", "estimate_errors")
 
@@ -47,14 +46,15 @@ class Checkpoint:
         if not self.path.exists():
             return None
         try:
-            with netCDF4.Dataset(self.path) as ds:
-                if ds.getncattr("fingerprint") != case.fingerprint:
-                    return None
-                record = {name: list(np.asarray(ds.variables[name][...], float)) for name in _SERIES}
-                record["probes"] = list(np.asarray(ds.variables["probes"][...], float))
-                field = np.asarray(ds.variables["field_real"][...]) + 1j * np.asarray(ds.variables["field_imag"][...])
-                return {"field_hat": field, "time": float(ds.getncattr("time")), "step": int(ds.getncattr("step")),
-                        "log_amplitude": float(ds.getncattr("log_amplitude")), "record": record}
+            data = read_dataset(self.path)
+            attributes = data["attributes"]
+            if attributes["fingerprint"] != case.fingerprint:
+                return None
+            record = {name: list(np.asarray(data[name], float)) for name in _SERIES}
+            record["probes"] = list(np.asarray(data["probes"], float))
+            field = np.asarray(data["field_real"]) + 1j * np.asarray(data["field_imag"])
+            return {"field_hat": field, "time": float(attributes["time"]), "step": int(attributes["step"]),
+                    "log_amplitude": float(attributes["log_amplitude"]), "record": record}
         except (OSError, KeyError, AttributeError):
             return None
 

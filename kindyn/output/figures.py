@@ -1,30 +1,40 @@
-"""Figures (matplotlib, Agg backend, only here). Each function takes plain arrays and a path."""
+"""Figures (matplotlib only in output/figures*.py). Each function takes plain arrays and a path.
+
+No pyplot and no global backend: every figure is a :class:`matplotlib.figure.Figure` drawn on its
+own Agg canvas (:func:`new_figure`). Importing kindyn therefore never switches the backend of a
+notebook or of a user's script, and no figure stays registered anywhere (nothing to close).
+"""
 
 from __future__ import annotations
 
 import os
 from pathlib import Path
 
-import matplotlib
+import numpy as np
+from matplotlib.backends.backend_agg import FigureCanvasAgg
+from matplotlib.figure import Figure
 
-matplotlib.use("Agg")
-import matplotlib.pyplot as plt  # noqa: E402
-import numpy as np  # noqa: E402
+
+def new_figure(**options) -> Figure:
+    """A figure (``options`` as for :class:`~matplotlib.figure.Figure`) on its own Agg canvas."""
+    fig = Figure(**options)
+    FigureCanvasAgg(fig)
+    return fig
 
 
 def save(fig, path) -> None:
-    """Write atomically (temporary name, then rename) and close the figure."""
+    """Write atomically (temporary name, then rename)."""
     path = Path(path)
     path.parent.mkdir(parents=True, exist_ok=True)
     partial = path.with_name(path.stem + ".part" + path.suffix)
     fig.savefig(partial, dpi=120, bbox_inches="tight")
-    plt.close(fig)
     os.replace(partial, path)
 
 
 def growth_figure(path, times, log_energy, growth_rate, error, window, title, warning="") -> None:
     """ln E_M versus time with the fitted slope 2 gamma over the fit window."""
-    fig, ax = plt.subplots(figsize=(6.4, 4.0))
+    fig = new_figure(figsize=(6.4, 4.0))
+    ax = fig.subplots()
     ax.plot(times, log_energy, lw=1.0, color="0.2", label=r"$\ln E_M$")
     if growth_rate is not None and np.isfinite(growth_rate):
         t0, t1 = window

@@ -9,7 +9,7 @@ from __future__ import annotations
 
 import numpy as np
 
-from kindyn.output.figures import plt, save
+from kindyn.output.figures import new_figure, save
 
 
 def flow_spectra_figure(path, wavenumbers, energy, helicity, title: str, note: str = "") -> None:
@@ -18,7 +18,8 @@ def flow_spectra_figure(path, wavenumbers, energy, helicity, title: str, note: s
     H = np.asarray(helicity, float)
     peak = E.max() if E.size else 0.0
     shown = (k > 0) & (E > 1e-14 * max(peak, 1e-300))
-    fig, (left, right) = plt.subplots(1, 2, figsize=(9.6, 3.8), layout="constrained")
+    fig = new_figure(figsize=(9.6, 3.8), layout="constrained")
+    left, right = fig.subplots(1, 2)
     left.loglog(k[shown], E[shown], "-o", ms=3, color="0.2", label=r"$E(k)$")
     scaled = np.abs(H[shown]) / (2 * k[shown])
     positive = H[shown] > 0

@@ -1,4 +1,4 @@
-"""Figure of an eigenfield on slices (matplotlib, Agg backend; ``kindyn modes``).
+"""Figure of an eigenfield on slices (matplotlib, on an Agg canvas; ``kindyn modes``).
 
 Plain arrays in: every panel is ``(title, values (n1, n2), (L1, L2), (label1, label2))`` with the
 first array axis along the horizontal of the panel. Written atomically by
@@ -7,19 +7,16 @@ first array axis along the horizontal of the panel. Written atomically by
 
 from __future__ import annotations
 
-import matplotlib
+import numpy as np
 
-matplotlib.use("Agg")
-import matplotlib.pyplot as plt  # noqa: E402
-import numpy as np  # noqa: E402
-
-from kindyn.output.figures import save  # noqa: E402
+from kindyn.output.figures import new_figure, save
 
 
 def modes_figure(path, panels, title: str, warning: str = "") -> None:
     """One colour map per panel (shared colour scale: the panels show the same quantity)."""
     count = len(panels)
-    fig, axes = plt.subplots(1, count, figsize=(3.6 * count + 0.8, 3.6), squeeze=False)
+    fig = new_figure(figsize=(3.6 * count + 0.8, 3.6))
+    axes = fig.subplots(1, count, squeeze=False)
     vmax = max(float(np.max(p[1])) for p in panels) or 1.0
     image = None
     for ax, (name, values, lengths, labels) in zip(axes[0], panels):

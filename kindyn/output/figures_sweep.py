@@ -1,4 +1,4 @@
-"""Figure of a sweep: growth rate versus the swept parameter (matplotlib, Agg backend, only here).
+"""Figure of a sweep: growth rate versus the swept parameter (matplotlib, on an Agg canvas).
 
 Error bars are the growth-rate uncertainties; the zero line separates growth from decay; critical
 values (sign changes of gamma) are marked with their uncertainty as a shaded band. Unconverged
@@ -8,13 +8,9 @@ are listed in the corner (they have no growth rate).
 
 from __future__ import annotations
 
-import matplotlib
+import numpy as np
 
-matplotlib.use("Agg")
-import matplotlib.pyplot as plt  # noqa: E402
-import numpy as np  # noqa: E402
-
-from kindyn.output.figures import save  # noqa: E402
+from kindyn.output.figures import new_figure, save
 
 
 def sweep_figure(path, curves, critical, xlabel, title, log_x=False, tick_labels=None) -> None:
@@ -26,7 +22,8 @@ def sweep_figure(path, curves, critical, xlabel, title, log_x=False, tick_labels
     dicts with ``value``, ``uncertainty`` and ``direction``; ``tick_labels``: text per x position
     for a sweep without a numeric key.
     """
-    fig, ax = plt.subplots(figsize=(6.8, 4.2))
+    fig = new_figure(figsize=(6.8, 4.2))
+    ax = fig.subplots()
     ax.axhline(0.0, color="0.4", lw=0.8, zorder=1)
     failed = 0
     for n, curve in enumerate(curves):

@@ -1,17 +1,13 @@
-"""Figures of test-field results (matplotlib, Agg backend): alpha and eta_t versus K or Rm, with SOCA.
+"""Figures of test-field results (matplotlib, on an Agg canvas): alpha and eta_t versus K, with SOCA.
 
 Plain arrays in, a PNG out (written atomically by :func:`kindyn.output.figures.save`).
 """
 
 from __future__ import annotations
 
-import matplotlib
+import numpy as np
 
-matplotlib.use("Agg")
-import matplotlib.pyplot as plt  # noqa: E402
-import numpy as np  # noqa: E402
-
-from kindyn.output.figures import save  # noqa: E402
+from kindyn.output.figures import new_figure, save
 
 CAUTION = "SOCA valid only at small Rm or short correlation time"
 
@@ -29,7 +25,8 @@ def coefficients_versus_K(path, K, alpha, alpha_err, eta_t, eta_t_err, alpha_soc
     ``K -> value`` drawn as lines.
     """
     K = np.asarray(K, float)
-    fig, axes = plt.subplots(1, 2, figsize=(9.6, 3.8))
+    fig = new_figure(figsize=(9.6, 3.8))
+    axes = fig.subplots(1, 2)
     fine = np.linspace(0.0, K.max() * 1.1, 200)
     for ax, name, full, err, soca, label in ((axes[0], "alpha", alpha, alpha_err, alpha_soca, r"$\alpha$"),
                                              (axes[1], "eta_t", eta_t, eta_t_err, eta_t_soca, r"$\eta_t$")):
@@ -48,23 +45,3 @@ def coefficients_versus_K(path, K, alpha, alpha_err, eta_t, eta_t_err, alpha_soc
     fig.text(0.01, -0.02, CAUTION + ("; " + note if note else ""), fontsize=8, color="C3")
     save(fig, path)
 
-
-def coefficients_versus_Rm(path, Rm, alpha, alpha_err, eta_t, eta_t_err, alpha_soca, eta_t_soca, title,
-                           note: str = "") -> None:
-    """alpha and eta_t versus Rm (log axis) beside SOCA, e.g. from a sweep over Rm at one K."""
-    Rm = np.asarray(Rm, float)
-    order = np.argsort(Rm)
-    fig, axes = plt.subplots(1, 2, figsize=(9.6, 3.8))
-    for ax, full, err, soca, label in ((axes[0], alpha, alpha_err, alpha_soca, r"$\alpha$"),
-                                       (axes[1], eta_t, eta_t_err, eta_t_soca, r"$\eta_t$")):
-        full, soca = np.asarray(full, float)[order], np.asarray(soca, float)[order]
-        err = None if err is None else np.asarray(err, float)[order]
-        _errorbar(ax, Rm[order], full, err, fmt="o-", color="C0", label="test fields (full)")
-        ax.plot(Rm[order], soca, "s--", mfc="none", color="C3", label="SOCA")
-        ax.set_xscale("log")
-        ax.set_xlabel("Rm")
-        ax.set_ylabel(label)
-        ax.legend(fontsize=8, loc="best")
-    fig.suptitle(title, fontsize=10)
-    fig.text(0.01, -0.02, CAUTION + ("; " + note if note else ""), fontsize=8, color="C3")
-    save(fig, path)

@@ -56,7 +56,7 @@ def set_attributes(target, attributes: dict) -> None:
 
 def provenance_attributes(case, title: str) -> dict:
     """Global attributes every kindyn file carries: conventions, title, version and the case."""
-    from kindyn import __version__
+    from kindyn._version import __version__
 
     return {
         "Conventions": CONVENTIONS,

@@ -2,8 +2,9 @@
 
 A method is a function ``runner(case, output, checkpoint) -> dict`` that solves the resolved
 ``case``, writes its netCDF record to ``output`` atomically (temporary name, then rename), may use
-``checkpoint`` (a path) to survive a kill, and returns plain numbers with at least the keys of
-:data:`RESULT_KEYS`. A method is registered with one line in :data:`METHODS`, either as the
+``checkpoint`` (a path) to survive a kill, and returns plain numbers with at least the keys
+``growth_rate``, ``growth_rate_error``, ``frequency``, ``converged``, ``Rm``, ``resolution_warning``
+and ``stop_reason``. A method is registered with one line in :data:`METHODS`, either as the
 function itself or as ``"package.module:function"`` (imported only when that method is used), e.g.
 an eigen-solver: ``"eigen": "kindyn.eigen.sweep:eigen_point"``.
 """
@@ -13,9 +14,6 @@ from __future__ import annotations
 import importlib
 from pathlib import Path
 from kindyn.diagnostics.spectra import resolution_caution
-
-RESULT_KEYS = ("growth_rate", "growth_rate_error", "frequency", "converged", "Rm", "resolution_warning",
-               "stop_reason")
 
 
 def growth_point(case, output: Path, checkpoint: Path) -> dict:

@@ -22,7 +22,7 @@ from pathlib import Path
 
 import numpy as np
 
-from kindyn import __version__
+from kindyn._version import __version__
 from kindyn.output.netcdf import CONVENTIONS, add_variable, atomic_dataset, set_attributes
 
 NUMBERS = (("growth_rate", "amplitude growth rate gamma of the leading mode", "1"),
