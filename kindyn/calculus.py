@@ -1,20 +1,18 @@
-"""Vector calculus on spectral arrays (half grid, axis order ``(component, x, y, z)``).
+"""Vector calculus on spectral arrays (axis order ``(component, x, y, z)``).
 
-All functions take the :class:`~kindyn.box.Box` for the wavenumbers and write into ``out`` when it
-is given (hot paths) or return a new array. Derivatives are exact for the represented modes:
-``d/dx_j -> i k_j``.
+All functions take a layout (:mod:`kindyn.layout`; anything with local broadcastable
+``wavenumbers`` and ``k_squared``) and write into ``out`` when it is given or return a new array.
+Derivatives are exact for the represented modes: ``d/dx_j -> i k_j``.
 """
 
 from __future__ import annotations
 
 import numpy as np
 
-from kindyn.box import Box
 
-
-def curl_hat(v_hat: np.ndarray, box: Box, out: np.ndarray | None = None) -> np.ndarray:
+def curl_hat(v_hat: np.ndarray, layout, out: np.ndarray | None = None) -> np.ndarray:
     """``(curl v)_hat = i k x v_hat``; ``out`` must not alias ``v_hat``."""
-    kx, ky, kz = box.wavenumbers
+    kx, ky, kz = layout.wavenumbers
     if out is None:
         out = np.empty_like(v_hat)
     vx, vy, vz = v_hat
@@ -25,17 +23,16 @@ def curl_hat(v_hat: np.ndarray, box: Box, out: np.ndarray | None = None) -> np.n
     return out
 
 
-def divergence_hat(v_hat: np.ndarray, box: Box) -> np.ndarray:
+def divergence_hat(v_hat: np.ndarray, layout) -> np.ndarray:
     """``(div v)_hat = i k . v_hat`` (scalar half-grid array)."""
-    kx, ky, kz = box.wavenumbers
+    kx, ky, kz = layout.wavenumbers
     return 1j * (kx * v_hat[0] + ky * v_hat[1] + kz * v_hat[2])
 
 
-def solenoidal_part_hat(v_hat: np.ndarray, box: Box) -> np.ndarray:
+def solenoidal_part_hat(v_hat: np.ndarray, layout) -> np.ndarray:
     """Leray projection ``v - k (k . v)/|k|^2`` (the k = 0 mode is left unchanged)."""
-    kx, ky, kz = box.wavenumbers
-    k2 = box.k_squared.copy()
-    k2[0, 0, 0] = 1.0
+    kx, ky, kz = layout.wavenumbers
+    k2 = np.where(layout.k_squared == 0, 1.0, layout.k_squared)
     k_dot_v = (kx * v_hat[0] + ky * v_hat[1] + kz * v_hat[2]) / k2
     return np.stack([v_hat[0] - kx * k_dot_v, v_hat[1] - ky * k_dot_v, v_hat[2] - kz * k_dot_v])
 
@@ -53,15 +50,3 @@ def cross(a: np.ndarray, b: np.ndarray, out: np.ndarray, scratch: np.ndarray | N
         np.multiply(a[k], b[j], out=scratch)
         out[i] -= scratch
     return out
-
-
-def mean_square(v_hat: np.ndarray, box: Box) -> float:
-    """Volume average ``<|v|^2>`` from Fourier coefficients (Parseval, half-grid weights)."""
-    w = box.parseval_weights
-    return float(sum(np.sum(w * (c.real**2 + c.imag**2)) for c in v_hat))
-
-
-def inner(a_hat: np.ndarray, b_hat: np.ndarray, box: Box) -> float:
-    """Volume average ``<a . b>`` of two real fields from their Fourier coefficients."""
-    w = box.parseval_weights
-    return float(sum(np.sum(w * (np.conj(a) * b).real) for a, b in zip(a_hat, b_hat)))

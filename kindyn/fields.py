@@ -1,9 +1,11 @@
-"""Initial magnetic fields (spectral, dealiased, solenoidal).
+"""Initial magnetic fields (spectral, dealiased, solenoidal) and the probes of the snapshot fit.
 
 The random field is the curl of a seeded Gaussian vector potential, filtered with the spectrum
 profile ``|b_hat(k)| ~ (k/k_0) exp(-(k/k_0)^2)`` so that its energy peaks near ``k_0``; it has zero
 mean (``b_hat(0) = 0``), is exactly solenoidal, lies in the 2/3-rule band and has unit energy.
 Same seed, same grid and box: the same field (numpy Generator, no global state).
+
+Every function takes the layout (:mod:`kindyn.layout`) that holds the field.
 """
 
 from __future__ import annotations
@@ -11,36 +13,36 @@ from __future__ import annotations
 import numpy as np
 
 from kindyn.calculus import curl_hat
-from kindyn.diagnostics.spectra import energy
-from kindyn.flows.base import sample_velocity
-from kindyn.transforms import spectral_from_physical
 
 
-def random_field_hat(box, engine, seed: int, peak_wavenumber: float) -> np.ndarray:
+def random_field_hat(layout, seed: int, peak_wavenumber: float) -> np.ndarray:
+    """Unit-energy random initial field (see module docstring); complex spectral array ``(3, *spectral_shape)``."""
     rng = np.random.default_rng(seed)
-    potential_hat = spectral_from_physical(engine, rng.standard_normal((3, *box.shape)))
-    k = np.sqrt(box.k_squared)
-    profile = np.exp(-((k / peak_wavenumber) ** 2)) * box.dealias_mask
+    potential_hat = layout.spectral_from_physical(rng.standard_normal((3, *layout.physical_shape)))
+    k = np.sqrt(layout.k_squared)
+    profile = np.exp(-((k / peak_wavenumber) ** 2)) * layout.dealias_mask
     profile[profile < 1e-30] = 0.0  # no subnormal numbers: they slow every transform that touches them
-    b_hat = curl_hat(potential_hat * profile, box)
-    b_hat[:, 0, 0, 0] = 0
-    return b_hat / np.sqrt(energy(b_hat, box))
+    b_hat = curl_hat(potential_hat * profile, layout)
+    if layout.uniform_mode is not None:
+        b_hat[(slice(None), *layout.uniform_mode)] = 0
+    return b_hat / np.sqrt(layout.energy(b_hat))
 
 
-def flow_field_hat(box, engine, flow, t: float = 0.0) -> np.ndarray:
+def flow_field_hat(layout, flow, t: float = 0.0) -> np.ndarray:
     """``B = u(t)`` on the dealiased band (used by exact tests: for a Beltrami flow it only decays)."""
-    b_hat = spectral_from_physical(engine, sample_velocity(flow, box, t)) * box.dealias_mask
-    return b_hat / np.sqrt(energy(b_hat, box))
+    b_hat = layout.spectral_from_physical(layout.sample_velocity(flow, t).astype(layout.real_dtype))
+    b_hat = b_hat * layout.dealias_mask
+    return b_hat / np.sqrt(layout.energy(b_hat))
 
 
-def probe_indices(box, count: int = 96, seed: int = 20261201) -> np.ndarray:
-    """Flat indices (into one component of the half grid) of the probe modes.
+def probe_indices(layout, count: int = 96, seed: int = 20261201) -> np.ndarray:
+    """Flat indices (into one component of the local spectral array) of the probe modes.
 
     The lowest kept modes (``|m_i| <= 2``) plus a seeded random choice of other kept modes, so that
     every mode structure projects on the probes.
     """
-    mx, my, mz = box.mode_numbers
-    kept = np.broadcast_to(box.dealias_mask, box.spectral_shape)
+    mx, my, mz = layout.mode_numbers
+    kept = np.broadcast_to(layout.dealias_mask, layout.spectral_shape)
     low = kept & (np.abs(mx) <= 2) & (np.abs(my) <= 2) & (mz <= 2)
     flat_low = np.flatnonzero(low)
     others = np.setdiff1d(np.flatnonzero(kept), flat_low)

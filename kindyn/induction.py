@@ -1,161 +1,218 @@
-"""The induction equation split for integrating-factor time stepping.
+"""The induction operator: the one place where ``curl(u x B)`` is evaluated.
 
-    dB/dt = curl(u x B) + eta Lap B        <=>     d b_hat/dt = N(t, b_hat) - eta |k|^2 b_hat
+Split for integrating-factor time stepping, the induction equation reads
 
-:class:`InductionOperator` evaluates the non-diffusive part ``N(t, b_hat) = (curl(u x B))_hat``
-pseudo-spectrally: ``B`` is brought to the grid, multiplied by ``u(t)`` on the grid, transformed
-back, and the curl is taken spectrally. Both ``u`` and ``B`` are kept within the 2/3-rule band, so
-the quadratic product is free of aliasing, and the result is masked to that band. The output is
-exactly solenoidal (it is a curl), so ``div B`` stays at round-off. The diffusion ``eta |k|^2`` is
-handed to the stepper as decay rates and integrated exactly.
+    dB/dt = curl(u x B) + eta Lap B       <=>      d b_hat/dt = N(t, b_hat) - eta |k|^2 b_hat
 
-The 2/3-rule band is a product of kept mode numbers along each axis (``|m_x| < nx/3`` is two index
-ranges of the FFT order, and so on), so it is the union of at most four rectangular blocks of the
-half grid: :attr:`InductionOperator.support`. The stepper advances only the values in these blocks
-(:meth:`InductionOperator.packed`; see :mod:`kindyn.stepping.integrating_factor`), which keeps ``B``
-inside the band; modes outside it only decay. The curl is evaluated on the blocks alone, with the
-``1/N`` of the forward transform folded into its coefficients ``i k / N``.
+and :class:`InductionOperator` evaluates the non-diffusive part pseudo-spectrally on a layout
+(:mod:`kindyn.layout`): the field is brought to the grid, multiplied by ``u(t)`` there,
+transformed back, and the curl is taken spectrally on the 2/3-rule band. ``u`` and ``B`` lie in
+that band, so the quadratic product is free of aliasing on the kept modes; the result is a curl, so
+``div B`` stays at round-off. The diffusion rates ``eta |k|^2`` (:attr:`decay_rates`) go to the
+stepper, which integrates them exactly.
 
-Hot path (beside the FFTs, memory traffic is what costs): the velocity components are kept at the
-shapes the flow returns (broadcastable, often two-dimensional); ``u x B`` is formed in place in the
-engine's physical buffer; the band values are scattered into the transform buffer and the curl
-gathered from it. These passes are the array kernels of :mod:`kindyn.array_kernels` (one fused,
-possibly multi-threaded pass each with numba; blocked numpy otherwise). Unavoidable temporaries: a
-time-dependent flow's velocity, made at each stage time.
+The same operator serves every problem kindyn solves, through its parameters:
 
-The uniform (k = 0) component of ``B`` is left untouched by ``N`` (``k x ... = 0``) and does not
-diffuse: it is the neutral mode of the periodic problem.
+* the **3-D run** and the **eigen-solves**: ``N b = curl(u x b)`` on a :class:`~kindyn.layout.BoxLayout`;
+* the **planar reduction** of a z-independent flow at fixed ``k_z``: the same on a
+  :class:`~kindyn.layout.PlanarLayout` (complex ``b``, ``d/dz -> i k_z``);
+* the **test problems** of the test-field method, ``n`` stacked fluctuation fields ``b`` about
+  prescribed mean test fields ``B_T`` (``mean_field``) with the modes of an average removed
+  (``fluctuation_of``)::
+
+      full:   N b = P curl(u x (B_T + b))            SOCA (``soca=True``):   N b = P curl(u x B_T)
+
+  ``P`` removes the modes of the average (planar means, or ``k = 0`` for the box mean), so
+  ``curl(f')`` is written ``P curl f`` and ``b`` never acquires a mean. Removing the mean of
+  ``u x B_T`` as well (``Ubar x B_T`` belongs to the mean-field equation) is the usual test-field
+  formulation with a mean flow kept in the fluctuation equation (Schrinner et al. 2007, Geophys.
+  Astrophys. Fluid Dyn. 101, 81; recalled from memory).
+
+``rhs(t, y, out)`` is a pure function of its arguments: the velocity is sampled at ``t`` itself
+(cached by that exact time). Flows that are piecewise constant in time (renovating flows) are
+handled by the stepper, which evaluates every stage of a step inside the step's renewal interval
+(:class:`~kindyn.stepping.IntegratingFactorStepper`, ``constant_between``).
+
+Entry points: :meth:`packed` on the band values packed as :attr:`support` describes (the stepper's),
+and ``operator(t, b_hat, out)`` on full spectral arrays (values outside the band are ignored;
+``out`` is zero there). Buffers are allocated once; the ``1/N`` of the forward transform is folded
+into the curl coefficients ``i k / N`` where the engine allows. The uniform (``k = 0``) component
+of ``B`` is left untouched (``k x ... = 0``) and does not diffuse: it is the neutral mode of the
+periodic problem.
 """
 
 from __future__ import annotations
 
 import numpy as np
 
-from kindyn.box import kept_index_ranges
-from kindyn.errors import FlowError
 from kindyn.array_kernels.numpy_kernels import NumpyKernels
-from kindyn.stepping.integrating_factor import BlockSupport
-
-
-def band_blocks(box) -> list[tuple[slice, ...]]:
-    """The 2/3-rule band of the half grid as disjoint rectangular blocks of whole z lines.
-
-    Returns index tuples over ``(x, y, z)`` of the half grid whose union is ``box.dealias_mask``:
-    kept x ranges times kept y ranges (:func:`kindyn.box.kept_index_ranges`), with ``m_z = 0..max``
-    along z.
-    """
-    nx, ny, _ = box.grid
-    z_kept = slice(0, box.max_kept_modes[2] + 1)
-    return [(x, y, z_kept) for x in kept_index_ranges(nx) for y in kept_index_ranges(ny)]
 
 
 class InductionOperator:
-    """``N(t, b_hat) = (curl(u x B))_hat`` on the dealiased band; buffers allocated once.
+    """``N(t, b) = P curl(u(t) x (b + B_T))`` on a layout's band, for ``fields`` stacked fields.
 
     Parameters
     ----------
-    box, flow, engine:
-        The box, a flow (see :mod:`kindyn.flows.base`) and a transform engine with 3 components.
+    layout:
+        What this process holds (:mod:`kindyn.layout`); gives wavenumbers, band, engine, coordinates.
+    flow:
+        The velocity (see :mod:`kindyn.flows.base`), sampled on the layout's points.
     eta:
         Magnetic diffusivity; :attr:`decay_rates` is ``eta |k|^2``.
     kernels:
         The array-kernel set (:func:`kindyn.array_kernels.make_kernels`); numpy by default.
-
-    Two entry points: :meth:`packed` on the band values packed as :attr:`support` describes (used by
-    the stepper), and ``operator(t, b_hat, out)`` on full half-grid arrays (values of ``b_hat``
-    outside the band are ignored; ``out`` is zero there).
+    fields:
+        Number of stacked three-component fields (test problems); one for a run.
+    mean_field:
+        Optional physical mean test fields ``B_T``, shape ``(fields, 3, ...)`` broadcasting to the
+        layout's ``physical_shape``; they enter ``u x (B_T + b)``.
+    fluctuation_of:
+        ``None`` (keep every mode), ``"box"`` (remove ``k = 0``) or an axis ``0, 1, 2`` (remove the
+        modes of the planar average that depends on that coordinate).
+    soca:
+        Drop ``curl(u x b)``: the second-order correlation approximation of the test problems.
     """
 
-    def __init__(self, box, flow, engine, eta: float, kernels=None):
-        self.box, self.flow, self.engine, self.eta = box, flow, engine, float(eta)
+    def __init__(self, layout, flow, eta: float, kernels=None, *, fields: int = 1, mean_field=None,
+                 fluctuation_of=None, soca: bool = False):
+        if soca and mean_field is None:
+            raise ValueError("a SOCA operator needs mean test fields")
+        self.layout, self.flow, self.eta = layout, flow, float(eta)
         self.kernels = kernels if kernels is not None else NumpyKernels()
-        real_dtype = engine.real.dtype
-        self.decay_rates = (self.eta * box.k_squared).astype(real_dtype)
-        self.support = BlockSupport(band_blocks(box), box.spectral_shape)
-        # the pyfftw engine can skip the 1/N pass of its forward transform; other engines normalise
-        self._unnormalised = getattr(engine, "unnormalised_forward", False)
-        scale = 1.0 / box.points if self._unnormalised else 1.0
-        self._curl_wavenumbers = tuple((k * scale).astype(real_dtype) for k in box.wavenumbers)
-        self._components, self._components_time = None, None  # u_x, u_y, u_z as the flow returns them
-        self._last_stage_time = None  # for renovating flows, see _evaluation_time
-        self._band_in = self._band_out = None  # for __call__ only
+        self.fields, self.soca, self.fluctuation_of = int(fields), bool(soca), fluctuation_of
+        self.engine = layout.engine(3 * self.fields)
+        real_dtype = layout.real_dtype
+        self.decay_rates = (self.eta * layout.k_squared).astype(real_dtype)
+        self.support = layout.band
+        self.shape = self.engine.spectral.shape
+        # the pyfftw engines can skip the 1/N pass of their forward transform; other engines normalise
+        self._unnormalised = getattr(self.engine, "unnormalised_forward", False)
+        scale = 1.0 / layout.points if self._unnormalised else 1.0
+        self._curl_wavenumbers = tuple(np.asarray(k * scale, dtype=real_dtype) for k in layout.wavenumbers)
+        if fluctuation_of is None:
+            self._removed = np.zeros(0, dtype=np.int64)
+        else:
+            self._removed = layout.band_entries(layout.mean_mode_mask(None if fluctuation_of == "box"
+                                                                      else int(fluctuation_of)))
+        self.mean_field = None
+        if mean_field is not None:
+            mean_field = np.asarray(mean_field, dtype=real_dtype)
+            if mean_field.shape[:2] != (self.fields, 3):
+                raise ValueError(f"mean_field of shape {mean_field.shape} does not hold {self.fields} three-component "
+                                 "fields")
+            self.mean_field = mean_field
+        self._velocity, self._velocity_time = None, None
+        self._steady_source = None
+        self._band_in = self._band_out = None  # for the full-array entry points only
         self.evaluations = 0
 
-    def _evaluation_time(self, t: float) -> float:
-        """Time at which to sample the flow for a stage at ``t``.
+    # --- the velocity -------------------------------------------------------------------------
+    def velocity(self, t: float):
+        """``u_x, u_y, u_z`` at ``t`` on the layout's points, as the layout samples them (each
+        broadcasts to the local grid). Cached: once for a steady flow, by exact time otherwise."""
+        if self._velocity_time is None or (not self.flow.steady and t != self._velocity_time):
+            self._velocity = self.layout.velocity_components(self.flow, t, self.layout.real_dtype)
+            self._velocity_time = t
+        return self._velocity
 
-        A renovating flow (attribute ``renewal_time`` tau) is redrawn at multiples of tau and is
-        constant in between; its velocity is right-continuous. Steps are aligned with tau
-        (:mod:`kindyn.timestep`), so a renewal falls on a step boundary ``t_n + h``. The last stage of
-        the step that ends there (``c = 1``) must still see that step's realisation, while the first
-        stage of the next step, called at the same time, must see the new one. A call at a renewal
-        time that comes from an earlier stage is therefore sampled inside the step (half-way back to
-        the previous stage); a repeated call at the same time is sampled at the time itself.
-        """
-        tau = getattr(self.flow, "renewal_time", None)
-        previous, self._last_stage_time = self._last_stage_time, t
-        if not tau or previous is None or previous >= t:
-            return t
-        n = round(t / tau)
-        if n >= 1 and abs(t - n * tau) <= 1e-9 * tau:
-            return t - 0.5 * min(t - previous, tau)
-        return t
-
-    def timing_probe(self):
-        """A callable evaluating ``N`` once on a zero field at ``t = 0`` that leaves the operator's
-        counters and renewal bookkeeping as they were (for :func:`kindyn.array_kernels.choose_threads`)."""
-        dtype = self.engine.spectral.dtype
-        zero, out = np.zeros((3, self.support.size), dtype), np.empty((3, self.support.size), dtype)
-
-        def evaluate():
-            evaluations, last = self.evaluations, self._last_stage_time
-            self.packed(0.0, zero, out)
-            self.evaluations, self._last_stage_time = evaluations, last
-        return evaluate
-
-    def velocity_components(self, t: float) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
-        """``u_x, u_y, u_z`` at ``t`` as 3-D arrays of the shapes the flow returns (each broadcasts to
-        the grid: the ABC flow's components depend on two coordinates each, so they are ``n`` times
-        smaller than the grid and the cross product reads far less memory). Cached when steady."""
-        if self._components_time is None or (not self.flow.steady and t != self._components_time):
-            x, y, z = self.box.coordinates
-            dtype = self.engine.real.dtype
-            components = []
-            for c in self.flow.velocity(x, y, z, t):
-                c = np.asarray(c, dtype=dtype)
-                c = c.reshape((1,) * (3 - c.ndim) + c.shape)
-                if c.ndim != 3 or any(m not in (1, n) for m, n in zip(c.shape, self.box.shape)):
-                    raise FlowError(f"velocity component of shape {c.shape} does not broadcast to the grid "
-                                    f"{self.box.shape} (flow {type(self.flow).__name__})")
-                components.append(c)
-            self._components, self._components_time = tuple(components), t
-        return self._components
-
-    def __call__(self, t: float, b_hat: np.ndarray, out: np.ndarray) -> np.ndarray:
-        """Write ``(curl(u(t) x B))_hat`` for the band part of ``b_hat`` (full half grid) into ``out``."""
-        if self._band_in is None:
-            self._band_in, self._band_out = (np.empty((3, self.support.size), self.engine.spectral.dtype)
-                                             for _ in range(2))
-        self.packed(t, self.support.gather(b_hat, self._band_in), self._band_out)
-        out.fill(0)
-        return self.support.add_to(self._band_out, out)
-
+    # --- packed entry point (the stepper's) ---------------------------------------------------
     def packed(self, t: float, b_band: np.ndarray, out: np.ndarray) -> np.ndarray:
-        """As ``__call__`` for a field given by its band values ``b_band`` (``(3, support.size)``,
-        packed; zero outside the band); writes the band values of the result into ``out``."""
-        self.kernels.spectral_from_band(self.support, b_band, self.engine.spectral)
-        self._emf_hat(t)
-        self.kernels.curl_to_band(self.support, self.engine.spectral, self._curl_wavenumbers, out)
+        """``N(t, b)`` for band values ``b_band`` ``(3 fields, support.size)``; writes the band values of
+        the result into ``out`` and returns it."""
+        if self.soca:
+            self._source_band(t, out)
+        else:
+            self._curl_of_cross(t, b_band, self.mean_field is not None, out)
         self.evaluations += 1
         return out
 
-    def _emf_hat(self, t: float) -> None:
-        """``engine.spectral <- (u(t) x B)_hat`` for ``B_hat`` in ``engine.spectral`` (``N`` times
-        that on the unnormalised path)."""
-        engine, u = self.engine, self.velocity_components(self._evaluation_time(t))
-        engine.backward()
-        self.kernels.cross_in_place(u, engine.real)
+    def timing_probe(self):
+        """A callable evaluating ``N`` once on a zero field at ``t = 0`` (for
+        :func:`kindyn.array_kernels.choose_threads`); it leaves the evaluation counter as it was."""
+        dtype = self.engine.spectral.dtype
+        zero = np.zeros((self.shape[0], self.support.size), dtype)
+        out = np.empty_like(zero)
+
+        def evaluate():
+            evaluations = self.evaluations
+            self.packed(0.0, zero, out)
+            self.evaluations = evaluations
+        return evaluate
+
+    # --- full-array entry points ----------------------------------------------------------------
+    def _band_buffers(self):
+        if self._band_in is None:
+            self._band_in, self._band_out = (np.empty((self.shape[0], self.support.size), self.engine.spectral.dtype)
+                                             for _ in range(2))
+        return self._band_in, self._band_out
+
+    def _to_full(self, band: np.ndarray, out: np.ndarray) -> np.ndarray:
+        out.fill(0)
+        return self.support.add_to(band, out)
+
+    def __call__(self, t: float, b_hat: np.ndarray, out: np.ndarray) -> np.ndarray:
+        """Write ``N(t, b)`` for the band part of ``b_hat`` (full spectral arrays) into ``out``."""
+        band_in, band_out = self._band_buffers()
+        self.packed(t, self.support.gather(b_hat, band_in), band_out)
+        return self._to_full(band_out, out)
+
+    def homogeneous(self, t: float, b_hat: np.ndarray, out: np.ndarray) -> np.ndarray:
+        """``P curl(u(t) x b)`` without the mean test fields (the term SOCA drops); full arrays."""
+        band_in, band_out = self._band_buffers()
+        self._curl_of_cross(t, self.support.gather(b_hat, band_in), False, band_out)
+        self.evaluations += 1
+        return self._to_full(band_out, out)
+
+    def source(self, t: float, out: np.ndarray) -> np.ndarray:
+        """``P curl(u(t) x B_T)`` for every mean test field; full arrays (cached for a steady flow)."""
+        _, band_out = self._band_buffers()
+        self._source_band(t, band_out)
+        return self._to_full(band_out, out)
+
+    def cross_hat(self, t: float, b_hat: np.ndarray) -> np.ndarray:
+        """Normalised Fourier coefficients of ``u(t) x b`` for every stacked field (a new array
+        ``(3 fields, *spectral_shape)``); the mean EMF of a test problem is its average."""
+        band_in, _ = self._band_buffers()
+        self._cross(t, self.support.gather(b_hat, band_in), False)
+        spectral = self.engine.spectral
+        if self._unnormalised:
+            return spectral * (1.0 / self.layout.points)
+        return spectral.copy()
+
+    # --- the evaluation -----------------------------------------------------------------------
+    def _source_band(self, t: float, out: np.ndarray) -> None:
+        if self._steady_source is not None:
+            np.copyto(out, self._steady_source)
+            return
+        self._curl_of_cross(t, None, True, out)
+        if self.flow.steady:
+            self._steady_source = out.copy()
+
+    def _cross(self, t: float, b_band, add_mean: bool) -> None:
+        """``engine.spectral <- (u(t) x (b + B_T))_hat`` (``N`` times that on the unnormalised path)."""
+        engine, kernels = self.engine, self.kernels
+        if b_band is None:
+            engine.real.fill(0)
+        else:
+            kernels.spectral_from_band(self.support, b_band, engine.spectral)
+            engine.backward()
+        if add_mean:
+            for f in range(self.fields):
+                engine.real[3 * f:3 * f + 3] += self.mean_field[f]
+        u = self.velocity(t)
+        for f in range(self.fields):
+            kernels.cross_in_place(u, engine.real[3 * f:3 * f + 3])
         if self._unnormalised:
             engine.forward(normalise=False)
         else:
             engine.forward()
+
+    def _curl_of_cross(self, t: float, b_band, add_mean: bool, out: np.ndarray) -> None:
+        """``out <- P curl(u(t) x (b + B_T))`` on the band, packed."""
+        self._cross(t, b_band, add_mean)
+        spectral = self.engine.spectral
+        for f in range(self.fields):
+            self.kernels.curl_to_band(self.support, spectral[3 * f:3 * f + 3], self._curl_wavenumbers,
+                                      out[3 * f:3 * f + 3])
+        if self._removed.size:
+            out[:, self._removed] = 0

@@ -19,16 +19,13 @@ from dataclasses import dataclass, field
 import numpy as np
 from threadpoolctl import threadpool_limits
 
+from kindyn.assemble import build_solver, check_stability, transform_settings
 from kindyn.diagnostics.growth import GrowthEstimate, estimate_growth
-from kindyn.diagnostics.spectra import cutoff_ratio, energy, shell_spectrum
+from kindyn.diagnostics.spectra import cutoff_ratio, shell_spectrum
 from kindyn.errors import CaseError, NumericalError
-from kindyn.flows.base import sample_velocity
 from kindyn.fields import flow_field_hat, probe_indices, probe_vector, random_field_hat
-from kindyn.induction import InductionOperator
-from kindyn.array_kernels import choose_threads, make_kernels
-from kindyn.stepping import TABLEAUX, IntegratingFactorStepper
+from kindyn.layout import BoxLayout
 from kindyn.timestep import Timing, choose_timing
-from kindyn.transforms import TransformSettings, make_engine, physical_from_spectral
 
 RUNAWAY_LOG_ENERGY_JUMP = 200.0
 CHECKS_PER_ESTIMATE = 4
@@ -74,45 +71,14 @@ class RunOutcome:
     array_kernels_note: str = ""  # why "auto" could not use numba here ("" when it could, or was not installed)
 
 
-@dataclass
-class Solver:
-    """The pieces that advance ``b_hat``: engine, induction operator and stepper."""
-
-    box: object
-    engine: object
-    operator: InductionOperator
-    stepper: IntegratingFactorStepper
-
-    @property
-    def kernels_used(self) -> str:
-        """The array-kernel set and its threads, as chosen when the solver was built."""
-        kernels = self.operator.kernels
-        return f"{kernels.name}, {kernels.threads} thread{'s' if kernels.threads != 1 else ''}"
-
-
-def build_solver(box, flow, eta: float, transforms: TransformSettings, scheme: str = "rk4") -> Solver:
-    engine = make_engine(box, transforms)
-    kernels = make_kernels(transforms.array_kernels, transforms.threads, engine.real.dtype)
-    operator = InductionOperator(box, flow, engine, eta, kernels)
-    choose_threads(kernels, operator.timing_probe())
-    stepper = IntegratingFactorStepper(operator, operator.decay_rates, TABLEAUX[scheme],
-                                       engine.spectral.shape, engine.spectral.dtype, kernels)
-    return Solver(box, engine, operator, stepper)
-
-
-def transform_settings(case) -> TransformSettings:
-    n = case.numerics
-    return TransformSettings(n.fft, n.threads, n.planning, n.precision, n.array_kernels)
-
-
-def initial_field(case, solver) -> np.ndarray:
+def initial_field(case, layout) -> np.ndarray:
     m = case.magnetic
     if m.initial_field == "flow":
-        b_hat = flow_field_hat(case.box, solver.engine, case.flow)
+        b_hat = flow_field_hat(layout, case.flow)
     else:
         peak = m.initial_peak or case.flow.wavenumber
-        b_hat = random_field_hat(case.box, solver.engine, m.seed, peak)
-    return b_hat.astype(solver.engine.spectral.dtype)
+        b_hat = random_field_hat(layout, m.seed, peak)
+    return b_hat.astype(layout.complex_dtype)
 
 
 def default_tolerance(case) -> float:
@@ -129,27 +95,29 @@ def run_growth(case, progress=None, checkpoint=None) -> RunOutcome:
     ``progress(t, estimate, tolerance)`` is called now and then; ``checkpoint`` (optional) has
     ``load(case) -> dict | None`` and ``save(case, state)`` and makes a killed run resumable.
     """
-    box, flow, settings = case.box, case.flow, case.run
-    solver = build_solver(box, flow, case.eta, transform_settings(case), settings.scheme)
-    timing = choose_timing(flow, box, settings.cfl, settings.time_step, settings.sample_interval)
-    check_stability(case, timing)
+    flow, settings = case.flow, case.run
+    layout = BoxLayout(case.box, transform_settings(case.numerics))
+    timing = choose_timing(flow, layout, settings.cfl, settings.time_step, settings.sample_interval)
+    key, value = ("run.time_step", settings.time_step) if settings.time_step else ("run.cfl", settings.cfl)
+    check_stability(settings.scheme, timing.courant, case.path, key, value, timing.courant / timing.dt)
+    solver = build_solver(layout, flow, case.eta, layout.transforms, settings.scheme)
     tolerance, max_time = default_tolerance(case), default_max_time(case)
     if settings.min_time > max_time:
         raise CaseError(case.path, "run.min_time", settings.min_time, f"at most run.max_time = {max_time:g}")
-    indices = probe_indices(box)
+    indices = probe_indices(layout)
     record, t, step, log_amp = Record(), 0.0, 0, 0.0
     state = checkpoint.load(case) if checkpoint else None
     if state:
-        b_hat = state["field_hat"].astype(solver.engine.spectral.dtype)
+        b_hat = state["field_hat"].astype(layout.complex_dtype)
         t, step, log_amp, record = state["time"], state["step"], state["log_amplitude"], Record(**state["record"])
     else:
-        b_hat = initial_field(case, solver)
+        b_hat = initial_field(case, layout)
     started, last_save, last_report = wallclock.time(), wallclock.time(), 0.0
     estimate = GrowthEstimate(math.nan, math.inf, math.nan, False, math.nan, (0.0, 0.0), 0, "not started")
     stop_reason = ""
     samples_since_estimate = 0
     if not record.times:
-        _sample(record, b_hat, box, t, log_amp, indices)
+        _sample(record, b_hat, layout, t, log_amp, indices)
     while True:
         for _ in range(timing.steps_per_sample):
             if step >= settings.max_steps:
@@ -160,7 +128,7 @@ def run_growth(case, progress=None, checkpoint=None) -> RunOutcome:
         if step >= settings.max_steps and len(record.times) and record.times[-1] != t:
             stop_reason = f"reached max_steps = {settings.max_steps} before converging"
             break
-        log_amp = _sample(record, b_hat, box, t, log_amp, indices, step)
+        log_amp = _sample(record, b_hat, layout, t, log_amp, indices, step)
         samples_since_estimate += 1
         due = max(CHECKS_PER_ESTIMATE, len(record.times) // ESTIMATES_PER_RECORD)
         if samples_since_estimate >= due * timing.samples_per_strobe:
@@ -188,35 +156,19 @@ def run_growth(case, progress=None, checkpoint=None) -> RunOutcome:
             last_save = now
     if record.estimate_times and record.estimate_times[-1] != t:
         estimate = _estimate(record, timing, tolerance, flow)
-    ratio = cutoff_ratio(b_hat, box, axes=(0, 1) if flow.z_independent else (0, 1, 2))
-    field = physical_from_spectral(solver.engine, b_hat)
-    return RunOutcome(estimate, record, b_hat, field, shell_spectrum(b_hat, box), ratio,
+    ratio = cutoff_ratio(b_hat, layout, axes=(0, 1) if flow.z_independent else (0, 1, 2))
+    field = layout.physical_from_spectral(b_hat)
+    return RunOutcome(estimate, record, b_hat, field, shell_spectrum(b_hat, layout), ratio,
                       ratio > settings.resolution_threshold, step, t, timing, stop_reason,
                       wallclock.time() - started, bool(state),
-                      _rms_speed(flow, box), solver.kernels_used,
+                      _rms_speed(flow, layout), solver.kernels_used,
                       solver.operator.kernels.fallback_reason)
 
 
-def _rms_speed(flow, box) -> float:
+def _rms_speed(flow, layout) -> float:
     """``u_rms`` of the flow on the grid at t = 0."""
-    return float(np.sqrt(np.mean(np.sum(sample_velocity(flow, box, 0.0) ** 2, axis=0))))
-
-
-def check_stability(case, timing: Timing) -> None:
-    """Refuse a time step beyond the scheme's stability limit for advection (before computing).
-
-    ``|lambda dt| <= dt sum_i max|u_i| k_max,i`` (:attr:`Timing.courant`) must stay below the
-    tableau's limit on the imaginary axis; otherwise the run would report the growth of a numerical
-    instability.
-    """
-    tableau = TABLEAUX[case.run.scheme]
-    limit = tableau.imaginary_stability
-    if limit and timing.courant > limit:
-        key, value = ("run.time_step", case.run.time_step) if case.run.time_step else ("run.cfl", case.run.cfl)
-        rate = timing.courant / timing.dt
-        raise CaseError(case.path, key, value,
-                        f"a step within the {tableau.name} stability limit: dt sum_i max|u_i| k_max,i = "
-                        f"{timing.courant:.3g} exceeds {limit:.3g} (time_step <= {limit / rate:.3g}, cfl <= {limit:.3g})")
+    u = layout.sample_velocity(flow, 0.0)
+    return float(np.sqrt(layout.total(np.sum(u ** 2)) / layout.points))
 
 
 def _estimate(record: Record, timing: Timing, tolerance: float, flow=None) -> GrowthEstimate:
@@ -228,9 +180,9 @@ def _estimate(record: Record, timing: Timing, tolerance: float, flow=None) -> Gr
         return estimate_growth(*record.strobed(timing.samples_per_strobe), tolerance=tolerance)
 
 
-def _sample(record: Record, b_hat, box, t, log_amp, indices, step=0) -> float:
+def _sample(record: Record, b_hat, layout, t, log_amp, indices, step=0) -> float:
     """Record one sample, renormalise ``b_hat`` to unit energy, return the new log-amplitude."""
-    e = energy(b_hat, box)
+    e = layout.energy(b_hat)
     previous = record.log_energy[-1] if record.log_energy else None
     if not math.isfinite(e) or e <= 0:
         raise NumericalError(f"magnetic energy became {e} at step {step}, t = {t:.6g} "

@@ -18,7 +18,6 @@ from dataclasses import dataclass
 
 import numpy as np
 
-from kindyn.flows.base import sample_velocity
 
 SAMPLES_PER_PERIOD = 8
 
@@ -40,30 +39,31 @@ def flow_time_period(flow) -> float | None:
     return getattr(flow, "period", None) or getattr(flow, "renewal_time", None)
 
 
-def max_speeds(flow, box, period: float | None) -> np.ndarray:
-    """``max |u_i|`` over the grid (and over a period sampled at 16 times when time-periodic)."""
+def max_speeds(flow, layout, period: float | None) -> np.ndarray:
+    """``max |u_i|`` over the grid (and over a period sampled at 16 times when time-periodic), through
+    the layout (:mod:`kindyn.layout`: its points and its maximum over processes)."""
     times = [0.0] if (flow.steady or not period) else list(np.linspace(0, period, 16, endpoint=False))
     speeds = np.zeros(3)
     for t in times:
-        u = sample_velocity(flow, box, t)
-        speeds = np.maximum(speeds, np.abs(u).reshape(3, -1).max(axis=1))
+        local = [float(np.max(np.abs(c))) for c in layout.velocity_components(flow, t, np.float64)]
+        speeds = np.maximum(speeds, layout.maximum(np.array(local)))
     return speeds
 
 
-def advection_rate(flow, box) -> float:
+def advection_rate(flow, layout) -> float:
     """``sum_i max|u_i| k_max,i``: the bound on ``|lambda|`` of the advective part (``dt = cfl / rate``)."""
-    return float(np.dot(max_speeds(flow, box, flow_time_period(flow)), box.max_kept_wavenumbers))
+    return float(np.dot(max_speeds(flow, layout, flow_time_period(flow)), layout.max_kept_wavenumbers))
 
 
-def cfl_time_step(flow, box, cfl: float) -> float:
-    rate = advection_rate(flow, box)
+def cfl_time_step(flow, layout, cfl: float) -> float:
+    rate = advection_rate(flow, layout)
     return cfl / rate if rate > 0 else math.inf
 
 
-def choose_timing(flow, box, cfl: float, time_step: float | None, sample_interval: float | None) -> Timing:
+def choose_timing(flow, layout, cfl: float, time_step: float | None, sample_interval: float | None) -> Timing:
     """Time step and sampling for a run (see module docstring)."""
     period = flow_time_period(flow)
-    rate = advection_rate(flow, box)
+    rate = advection_rate(flow, layout)
     dt = time_step if time_step else (cfl / rate if rate > 0 else math.inf)
     turnover = 1.0 / (flow.speed * flow.wavenumber)
     if period:

@@ -9,7 +9,11 @@ For each grid size and precision, in fresh subprocesses (so that peak memory is 
     k = 1, Rm = 12, CFL time step; ``IntegratingFactorStepper.step``), with the array kernels of
     ``--array-kernels`` (default auto: numba when installed) and, beside it, (b') with the numpy kernels;
 (c) the same step written plainly with numpy.fft (:class:`PlainStep` below: irfftn/rfftn, cross
-    product, curl, 2/3 mask, Lawson RK4 with exponential factors, allocating as plain code does).
+    product, curl, 2/3 mask, Lawson RK4 with exponential factors, allocating as plain code does);
+(d) one step of the full set of test problems of the test-field method for one wavenumber
+    (3 uniform test fields with the box mean removed, 4 sinusoidal ones along z at K = 1 with the
+    planar means removed; full problems, stacked in two solvers that share the run's operator and
+    kernels), reported as (d) / (7 x (b)): the cost per test problem relative to one run step.
 
 It prints the median wall-clock times (after a warm-up; a, b and c are interleaved so that other
 load on a shared machine hits them alike), the ratios (b)/(a) and (c)/(b) of the medians and of the
@@ -17,7 +21,7 @@ best repeats, the largest difference between (b) and (c) after one step from the
 (relative to the field), and the peak resident memory (``ru_maxrss``) per grid point of a process
 that builds kindyn's solver (or the plain step) and takes two steps: in total, and above the same
 process after its imports. Ratios, not seconds: machines are shared and noisy. Targets (issue 2):
-at 64^3 on 2 cores, (b)/(a) <= 1.5 and (c)/(b) >= 3. Like the ``kindyn`` command, the benchmark sets
+at 64^3 on 2 cores, (b)/(a) <= 1.5 and (c)/(b) >= 3; (d)/(7 b) <= 1.3. Like the ``kindyn`` command, the benchmark sets
 a short OpenMP spin (:func:`kindyn.array_kernels.configure_openmp_wait`) unless the environment chooses.
 
     python scripts/bench_step.py                       # 32^3, 64^3, 128^3; double and single
@@ -138,13 +142,33 @@ def setup(size: int, precision: str, threads: int, planning: str, array_kernels:
     """Box, flow, eta and time step of the benchmark problem (ABC 1:1:1, k = 1, Rm = 12, CFL 1)."""
     from kindyn.box import Box
     from kindyn.flows.beltrami import ABCFlow
+    from kindyn.layout import BoxLayout
     from kindyn.timestep import cfl_time_step
     from kindyn.transforms import PRECISIONS, TransformSettings
 
     box, flow = Box(grid=(size, size, size)), ABCFlow(1.0, 1.0, 1.0, 1.0)
     eta = flow.speed / (RM * flow.wavenumber)
     settings = TransformSettings("fftw", threads, planning, precision, array_kernels)
-    return box, flow, eta, cfl_time_step(flow, box, 1.0), settings, PRECISIONS[precision]
+    return box, flow, eta, cfl_time_step(flow, BoxLayout(box), 1.0), settings, PRECISIONS[precision]
+
+
+def test_field_steppers(box, flow, eta, settings):
+    """The full test problems of one wavenumber (3 uniform + 4 sinusoidal along z at K = 1): two
+    stacked solvers on one double-precision layout, and their states."""
+    from kindyn.array_kernels import choose_threads, make_kernels
+    from kindyn.layout import BoxLayout
+    from kindyn.testfield.fields import sinusoidal_test_fields, uniform_test_fields
+    from kindyn.testfield.problems import TestProblems
+
+    layout = BoxLayout(box, replace(settings, precision="double"))
+    kernels = make_kernels(settings.array_kernels, settings.threads, layout.real_dtype)
+    groups = [TestProblems(layout, flow, eta, uniform_test_fields(), None, kernels=kernels),
+              TestProblems(layout, flow, eta, sinusoidal_test_fields(2, 1, 1.0), 2, kernels=kernels)]
+    choose_threads(kernels, groups[1].operator.timing_probe())
+    rng = np.random.default_rng(5)
+    states = [(rng.standard_normal(g.shape) + 1j * rng.standard_normal(g.shape)) * layout.dealias_mask * 1e-3
+              for g in groups]
+    return groups, states
 
 
 def peak_rss_bytes() -> int:
@@ -154,12 +178,14 @@ def peak_rss_bytes() -> int:
 # --- workers (one subprocess each) -----------------------------------------------------------
 
 def time_worker(args) -> dict:
+    from kindyn.assemble import build_solver
     from kindyn.flows.base import sample_velocity
-    from kindyn.run import build_solver
 
     box, flow, eta, h, settings, (real_dtype, complex_dtype) = setup(args.size, args.precision, args.threads,
                                                                      args.planning, args.array_kernels)
     solver = build_solver(box, flow, eta, settings)
+    groups, tf_states = test_field_steppers(box, flow, eta, settings)
+    test_problems = sum(g.count for g in groups)
     engine, stepper = solver.engine, solver.stepper
     numpy_stepper = build_solver(box, flow, eta, replace(settings, array_kernels="numpy")).stepper
     plain = PlainStep(box, sample_velocity(flow, box, 0.0), eta, real_dtype)
@@ -192,8 +218,12 @@ def time_worker(args) -> dict:
     def plain_step():
         state["plain"] = plain.step(state["plain"], h)
 
+    def test_field_step():
+        for group, y in zip(groups, tf_states):
+            group.stepper.step(0.0, y, h)
+
     engine.spectral[...] = b0
-    jobs = {"a": ffts, "b": kindyn_step, "b_numpy": numpy_kernels_step, "c": plain_step}
+    jobs = {"a": ffts, "b": kindyn_step, "b_numpy": numpy_kernels_step, "c": plain_step, "d": test_field_step}
     wall, cpu = {key: [] for key in jobs}, {key: [] for key in jobs}
     for r in range(args.warmup + args.repeats):
         for key, job in jobs.items():
@@ -208,6 +238,7 @@ def time_worker(args) -> dict:
     return {"size": args.size, "precision": args.precision, "threads": args.threads, "dt": h,
             "kernels": stepper.kernels.name, "kernel_threads": stepper.kernels.threads,
             "a": w["a"], "b": w["b"], "b_numpy": w["b_numpy"], "c": w["c"], "b_numpy_over_a": w["b_numpy"] / w["a"],
+            "d": w["d"], "test_problems": test_problems, "d_per_problem_over_b": w["d"] / (test_problems * w["b"]),
             "b_over_a": w["b"] / w["a"], "c_over_b": w["c"] / w["b"],
             "best_b_over_a": best["b"] / best["a"], "best_c_over_b": best["c"] / best["b"],
             "cpu_b_over_a": c["b"] / c["a"], "cpu_c_over_b": c["c"] / c["b"], "difference": difference,
@@ -221,8 +252,8 @@ def memory_worker(args) -> dict:
     from kindyn.array_kernels import numba_available  # imports numba when installed
 
     numba_available()
+    from kindyn.assemble import build_solver
     from kindyn.flows.base import sample_velocity
-    from kindyn.run import build_solver
 
     before = peak_rss_bytes()
     box, flow, eta, h, settings, (real_dtype, complex_dtype) = setup(args.size, args.precision, args.threads,
@@ -257,13 +288,13 @@ def table(rows) -> str:
             f"{'(c)/(b)':>8} {'(b)/(a)':>8} {'(c)/(b)':>8} {'(b`)/(a)':>8} {'|b-c|/|b|':>9} {'kernels':>9} "
             f"{'kindyn B/pt':>13} {'plain B/pt':>13}")
     units = (f"{'':>6} {'':>9} {'ms':>9} {'ms':>9} {'ms':>9} {'median':>8} {'median':>8} {'best':>8} {'best':>8} "
-             f"{'median':>8} {'':>9} {'(threads)':>9} {'peak (above)':>13} {'peak (above)':>13}")
+             f"{'median':>8} {'median':>8} {'':>9} {'(threads)':>9} {'peak (above)':>13} {'peak (above)':>13}")
     lines = [head, units]
     for r in rows:
         lines.append(f"{r['size']:>4}^3 {r['precision']:>9} "
                      f"{1e3 * r['a']:9.2f} {1e3 * r['b']:9.2f} {1e3 * r['c']:9.2f} {r['b_over_a']:8.2f} "
                      f"{r['c_over_b']:8.2f} {r['best_b_over_a']:8.2f} {r['best_c_over_b']:8.2f} "
-                     f"{r['b_numpy_over_a']:8.2f} {r['difference']:9.1e} {r['kernels']:>6} ({r['kernel_threads']}) {r['kindyn_peak']:6.0f} ({r['kindyn_above']:4.0f}) "
+                     f"{r['b_numpy_over_a']:8.2f} {r['d_per_problem_over_b']:8.2f} {r['difference']:9.1e} {r['kernels']:>6} ({r['kernel_threads']}) {r['kindyn_peak']:6.0f} ({r['kindyn_above']:4.0f}) "
                      f"{r['plain_peak']:6.0f} ({r['plain_above']:4.0f})")
     return "\n".join(lines)
 

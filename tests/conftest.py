@@ -47,7 +47,9 @@ def random_field():
     from kindyn.fields import random_field_hat
 
     def make(box, engine, seed: int = 1, peak: float | None = None):
+        from kindyn.layout import BoxLayout
+
         peak = peak if peak is not None else 2 * np.pi / min(box.lengths) * 2
-        return random_field_hat(box, engine, seed, peak).astype(engine.spectral.dtype)
+        return random_field_hat(BoxLayout(box), seed, peak).astype(engine.spectral.dtype)
 
     return make

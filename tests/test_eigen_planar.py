@@ -27,13 +27,14 @@ from kindyn.diagnostics.spectra import energy
 from kindyn.eigen.basis import PlanarBasis, SolenoidalBasis
 from kindyn.eigen.floquet import box_period_map, floquet_modes, planar_period_map
 from kindyn.eigen.krylov import leading_eigenpairs
-from kindyn.eigen.planar import PlanarGrid, PlanarInductionOperator, is_z_independent
+from kindyn.eigen.planar import is_z_independent
+from kindyn.induction import InductionOperator
+from kindyn.layout import BoxLayout, PlanarGrid, PlanarLayout
 from kindyn.eigen.propagator import box_propagator, planar_propagator
 from kindyn.errors import FlowError
 from kindyn.flows.beltrami import ABCFlow
 from kindyn.flows.cellular import GallowayProctorFlow, RobertsFlow
 from kindyn.transforms import TransformSettings, make_engine
-from kindyn.transforms.planar import make_planar_engine
 
 try:
     from tests.reference import roberts_galerkin as rg
@@ -47,12 +48,12 @@ TWO_PI = 2 * math.pi
 @pytest.mark.parametrize("grid, lengths", [((8, 8, 8), (TWO_PI,) * 3), ((9, 10, 7), (TWO_PI, 4.0, 3 * math.pi))])
 def test_box_basis_is_an_energy_isometry_onto_real_solenoidal_fields(grid, lengths):
     box = Box(lengths, grid)
-    basis = SolenoidalBasis(box)
+    basis = SolenoidalBasis(BoxLayout(box))
     rng = np.random.default_rng(3)
     v = rng.standard_normal(basis.size)
     b_hat = basis.field_hat_from_vector(v, np.empty((3, *box.spectral_shape), complex))
     # exact: |v|^2 = <|B|^2>/2 (Parseval), div B = 0, zero mean, dealiased
-    assert energy(b_hat, box) == pytest.approx(float(v @ v), rel=1e-13)
+    assert energy(b_hat, BoxLayout(box)) == pytest.approx(float(v @ v), rel=1e-13)
     assert np.max(np.abs(divergence_hat(b_hat, box))) < 1e-12
     assert np.all(b_hat[:, 0, 0, 0] == 0)
     assert np.all(b_hat[:, ~np.broadcast_to(box.dealias_mask, box.spectral_shape)] == 0)
@@ -71,11 +72,12 @@ def test_box_basis_is_an_energy_isometry_onto_real_solenoidal_fields(grid, lengt
 @pytest.mark.parametrize("kz", [0.0, 0.7])
 def test_planar_basis_is_solenoidal_and_isometric(kz):
     grid = PlanarGrid((TWO_PI, 5.0), (10, 11), kz)
-    basis = PlanarBasis(grid)
+    layout = PlanarLayout(grid)
+    basis = PlanarBasis(layout)
     rng = np.random.default_rng(4)
     v = rng.standard_normal(basis.size) + 1j * rng.standard_normal(basis.size)
-    b_hat = basis.field_hat_from_vector(v, np.empty((3, 10, 11), complex))
-    kx, ky, _ = grid.wavenumbers
+    b_hat = basis.field_hat_from_vector(v, np.empty((3, 10, 11, 1), complex))
+    kx, ky, _ = layout.wavenumbers
     assert np.max(np.abs(kx * b_hat[0] + ky * b_hat[1] + kz * b_hat[2])) < 1e-12
     assert np.sum(np.abs(b_hat) ** 2) == pytest.approx(np.vdot(v, v).real, rel=1e-13)
     np.testing.assert_allclose(basis.vector_from_field_hat(b_hat), v, rtol=0, atol=1e-13)
@@ -97,11 +99,12 @@ def _reference_layout(b_hat, M, n):
 def test_planar_operator_equals_dense_galerkin_matrix(n, kz, eta, flow, coeffs, engine):
     grid = PlanarGrid((TWO_PI, TWO_PI), (n, n), kz)
     M = (n - 1) // 3
-    operator = PlanarInductionOperator(grid, flow, make_planar_engine((n, n), engine=engine), eta)
-    basis = PlanarBasis(grid)
+    layout = PlanarLayout(grid, TransformSettings(engine=engine))
+    operator = InductionOperator(layout, flow, eta)
+    basis = PlanarBasis(layout)
     rng = np.random.default_rng(5)
     b_hat = basis.field_hat_from_vector(rng.standard_normal(basis.size) + 1j * rng.standard_normal(basis.size),
-                                        np.empty((3, n, n), complex))
+                                        np.empty((3, n, n, 1), complex))
     out = np.empty_like(b_hat)
     operator(0.9, b_hat, out)
     ours = _reference_layout(out - operator.decay_rates * b_hat, M, n)

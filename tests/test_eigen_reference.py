@@ -24,7 +24,8 @@ from threadpoolctl import threadpool_limits
 
 from kindyn.eigen.floquet import floquet_modes, planar_period_map
 from kindyn.eigen.krylov import leading_eigenpairs
-from kindyn.eigen.planar import PlanarGrid, planar_cutoff_ratio, planar_time_step
+from kindyn.eigen.planar import planar_cutoff_ratio, planar_time_step
+from kindyn.layout import PlanarGrid
 from kindyn.eigen.propagator import planar_propagator
 from kindyn.flows.cellular import GallowayProctorFlow, RobertsFlow
 

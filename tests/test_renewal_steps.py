@@ -51,7 +51,7 @@ def _advance(flow, b_hat, t0, dt, steps, box):
 def test_step_ending_on_a_renewal_sees_only_the_old_realisation():
     box = Box(grid=(12, 12, 12))
     solver = build_solver(box, FIRST, 0.05, TransformSettings(engine="scipy"))
-    start = random_field_hat(box, solver.engine, seed=4, peak_wavenumber=2.0)
+    start = random_field_hat(solver.layout, seed=4, peak_wavenumber=2.0)
     steps, dt = 8, TAU / 8
     renovated = _advance(TwoRealisations(), start.copy(), 0.0, dt, 2 * steps, box)
     piecewise = _advance(FIRST, start.copy(), 0.0, dt, steps, box)

@@ -22,6 +22,7 @@ from kindyn.errors import CaseError
 from kindyn.testfield.closure import anisotropic_growth_rate, mean_field_growth_rate
 from kindyn.testfield.extraction import (alpha_from_uniform, beta_from_eta, coefficients_from_profiles,
                                          horizontal_parts, manufactured_emf)
+from kindyn.layout import BoxLayout
 from kindyn.testfield.fields import mean_mode_mask, mean_profile, sinusoidal_test_fields
 from kindyn.testfield.kernels import fit_lorentzian
 from kindyn.testfield.settings import plan_from_case
@@ -77,16 +78,17 @@ def test_planar_beta_matches_minus_eta_curl(rng, axis):
 def test_mean_profile_and_mask_on_a_known_field():
     """Planar mean of f = cos(x) cos(2z) + 3 sin(z) + 0.5 over xy-planes is 3 sin z + 0.5 (exact)."""
     box = Box(grid=(10, 8, 12))
+    layout = BoxLayout(box)
     x, y, z = box.coordinates
     f = np.cos(x) * np.cos(2 * z) + 3 * np.sin(z) + 0.5 + 0 * y
     f_hat = np.fft.rfftn(f, norm="forward")
-    np.testing.assert_allclose(mean_profile(f_hat, box, 2), 3 * np.sin(box.axis(2)) + 0.5, atol=1e-13)
-    np.testing.assert_allclose(mean_profile(f_hat, box, None), 0.5, atol=1e-14)
+    np.testing.assert_allclose(mean_profile(f_hat, layout, 2), 3 * np.sin(box.axis(2)) + 0.5, atol=1e-13)
+    np.testing.assert_allclose(mean_profile(f_hat, layout, None), 0.5, atol=1e-14)
     g = np.cos(3 * x) + np.cos(x) * np.cos(y) + 0 * z
-    np.testing.assert_allclose(mean_profile(np.fft.rfftn(g, norm="forward"), box, 0),
+    np.testing.assert_allclose(mean_profile(np.fft.rfftn(g, norm="forward"), layout, 0),
                                np.cos(3 * box.axis(0)), atol=1e-13)
-    assert mean_mode_mask(box, None).sum() == 1
-    assert mean_mode_mask(box, 2).sum() == box.spectral_shape[2]
+    assert mean_mode_mask(layout, None).sum() == 1
+    assert mean_mode_mask(layout, 2).sum() == box.spectral_shape[2]
 
 
 def test_lorentzian_fit_recovers_parameters():

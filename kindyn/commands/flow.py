@@ -9,9 +9,8 @@ from __future__ import annotations
 
 from kindyn.commands.common import add_case_arguments, case_from_args, clean_number, output_folder, print_json, say
 from kindyn.diagnostics.flow_stats import flow_statistics, time_dependence
-from kindyn.flows.base import sample_velocity
-from kindyn.run import transform_settings
-from kindyn.transforms import make_engine, spectral_from_physical
+from kindyn.assemble import transform_settings
+from kindyn.layout import BoxLayout
 
 HELP = "describe the case's flow: u_rms, helicity, spectra, divergence and SOCA estimates"
 
@@ -75,10 +74,10 @@ def execute(args) -> int:
     case = case_from_args(args)
     out = output_folder(args)
     box = case.box
-    u = sample_velocity(case.flow, box, 0.0)
-    engine = make_engine(box, transform_settings(case))
-    u_hat = spectral_from_physical(engine, u)
-    stats = flow_statistics(u, u_hat, box, case.eta)
+    layout = BoxLayout(box, transform_settings(case.numerics, precision="double"))
+    u = layout.sample_velocity(case.flow, 0.0)
+    u_hat = layout.spectral_from_physical(u)
+    stats = flow_statistics(u, u_hat, layout, case.eta)
     summary = flow_summary(case, stats)
     nc_path, png_path = out / f"{case.name}-flow.nc", out / f"{case.name}-flow.png"
     from kindyn.output.flow_file import write_flow_file

@@ -65,8 +65,7 @@ def shell_spectra(u_hat: np.ndarray, box) -> tuple[np.ndarray, np.ndarray, np.nd
 def soca_coefficients(u_hat: np.ndarray, box, eta: float) -> tuple[float, float]:
     """Steady-flow SOCA ``(alpha, eta_t)`` mode by mode (module docstring; Moffatt 1978, ch. 7)."""
     w = box.parseval_weights
-    k2 = box.k_squared.copy()
-    k2[0, 0, 0] = np.inf  # the mean flow does not contribute
+    k2 = np.where(box.k_squared == 0, np.inf, box.k_squared)  # the mean flow does not contribute
     omega_hat = curl_hat(u_hat, box)
     helicity = w * sum((np.conj(a) * b).real for a, b in zip(u_hat, omega_hat))
     energy2 = w * sum(np.abs(c) ** 2 for c in u_hat)  # 2 E per mode

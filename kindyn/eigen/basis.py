@@ -43,8 +43,10 @@ def polarisation_vectors(qx: np.ndarray, qy: np.ndarray, qz: np.ndarray) -> tupl
 class SolenoidalBasis:
     """Real vectors <-> real solenoidal zero-mean dealiased fields on a 3-D half grid (see module doc)."""
 
-    def __init__(self, box):
-        self.box = box
+    def __init__(self, layout):
+        self.layout = box = layout
+        if layout.uniform_mode != (0, 0, 0):
+            raise ValueError("the solenoidal basis needs a layout that holds the whole half grid")
         mx, my, mz = (np.broadcast_to(m, box.spectral_shape) for m in box.mode_numbers)
         kept = np.broadcast_to(box.dealias_mask, box.spectral_shape) & ((mx != 0) | (my != 0) | (mz != 0))
         upper_plane = (mz == 0) & ((mx > 0) | ((mx == 0) & (my > 0)))
@@ -86,7 +88,7 @@ class SolenoidalBasis:
 
     def complex_field_hat(self, v: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
         """Real and imaginary fields ``(B_r_hat, B_i_hat)`` of a complex eigenvector ``v = v_r + i v_i``."""
-        shape = (3, *self.box.spectral_shape)
+        shape = (3, *self.layout.spectral_shape)
         return (self.field_hat_from_vector(np.ascontiguousarray(v.real), np.empty(shape, complex)),
                 self.field_hat_from_vector(np.ascontiguousarray(v.imag), np.empty(shape, complex)))
 
@@ -94,21 +96,21 @@ class SolenoidalBasis:
 class PlanarBasis:
     """Complex vectors <-> complex planar amplitudes ``b_hat(m_x, m_y)`` (see module doc)."""
 
-    def __init__(self, grid):
-        self.grid = grid
-        kx, ky = (np.broadcast_to(k, grid.shape) for k in grid.wavenumbers[:2])
-        kept = grid.dealias_mask.copy()
-        if grid.kz == 0:
-            kept[0, 0] = False
+    def __init__(self, layout):
+        self.layout = layout
+        kx, ky = (np.broadcast_to(k, layout.spectral_shape) for k in layout.wavenumbers[:2])
+        kept = np.broadcast_to(layout.dealias_mask, layout.spectral_shape).copy()
+        if layout.uniform_mode is not None:
+            kept[layout.uniform_mode] = False
         self.index = np.flatnonzero(kept)
         self.e1, self.e2 = polarisation_vectors(kx.ravel()[self.index], ky.ravel()[self.index],
-                                                np.full(self.index.size, grid.kz))
+                                                np.full(self.index.size, layout.kz))
         self.modes = self.index.size
         self.size = 2 * self.modes
         self.dtype = np.complex128
 
     def field_hat_from_vector(self, v: np.ndarray, out: np.ndarray) -> np.ndarray:
-        """Fill ``out`` (shape ``(3, nx, ny)``, complex) from the complex vector ``v``."""
+        """Fill ``out`` (shape ``(3, nx, ny, 1)`` or ``(3, nx, ny)``, complex) from the complex vector ``v``."""
         n = self.modes
         flat = out.reshape(3, -1)
         flat[...] = 0

@@ -18,8 +18,8 @@ from __future__ import annotations
 import math
 
 from kindyn.eigen.krylov import EigenSolution, leading_eigenpairs
-from kindyn.eigen.planar import PlanarGrid
 from kindyn.eigen.propagator import Propagator, box_propagator, planar_propagator
+from kindyn.layout import PlanarGrid
 
 
 def steps_per_period(period: float, dt_max: float, multiple: int = 1) -> int:

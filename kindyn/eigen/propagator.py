@@ -23,8 +23,9 @@ from dataclasses import replace
 import numpy as np
 import scipy.sparse.linalg
 
+from kindyn.assemble import build_planar_solver, build_solver
 from kindyn.eigen.basis import PlanarBasis, SolenoidalBasis
-from kindyn.eigen.planar import PlanarGrid, build_planar_solver
+from kindyn.layout import BoxLayout, PlanarGrid
 from kindyn.transforms import TransformSettings
 
 
@@ -78,13 +79,12 @@ def box_propagator(box, flow, eta: float, dt: float, steps: int, transforms=None
                    start_time: float = 0.0) -> Propagator:
     """The 3-D propagator on ``box`` (real vectors, :class:`~kindyn.eigen.basis.SolenoidalBasis`).
 
-    Built with :func:`kindyn.run.build_solver`; eigen-solves always run in double precision.
+    Built with :func:`kindyn.assemble.build_solver`; eigen-solves always run in double precision.
     """
-    from kindyn.run import build_solver
-
     settings = replace(transforms or TransformSettings(), precision="double")
-    solver = build_solver(box, flow, eta, settings, scheme)
-    return Propagator(solver.stepper, SolenoidalBasis(box), solver.engine.spectral.shape, dt, steps, start_time,
+    layout = BoxLayout(box, settings)
+    solver = build_solver(layout, flow, eta, settings, scheme)
+    return Propagator(solver.stepper, SolenoidalBasis(layout), solver.operator.shape, dt, steps, start_time,
                       solver)
 
 
@@ -95,8 +95,7 @@ def planar_propagator(grid: PlanarGrid, flow, eta: float, dt: float, steps: int,
     ``transforms`` (a :class:`~kindyn.transforms.TransformSettings`) picks the planar engine, its
     threads and planning; the precision is always double.
     """
-    settings = transforms or TransformSettings()
-    solver = build_planar_solver(grid, flow, eta, scheme, settings.threads, settings.engine, settings.planning,
-                                 settings.array_kernels)
-    return Propagator(solver.stepper, PlanarBasis(grid), solver.engine.spectral.shape, dt, steps, start_time,
+    settings = replace(transforms or TransformSettings(), precision="double")
+    solver = build_planar_solver(grid, flow, eta, scheme, settings)
+    return Propagator(solver.stepper, PlanarBasis(solver.layout), solver.operator.shape, dt, steps, start_time,
                       solver)

@@ -26,7 +26,9 @@ import numpy as np
 
 from kindyn.eigen.floquet import floquet_modes, steps_per_period
 from kindyn.eigen.krylov import EigenSolution, leading_eigenpairs
-from kindyn.eigen.planar import PlanarGrid, is_z_independent, planar_cutoff_ratio, planar_time_step
+from kindyn.assemble import check_stability, transform_settings
+from kindyn.eigen.planar import is_z_independent, planar_cutoff_ratio, planar_time_step
+from kindyn.layout import PlanarGrid
 from kindyn.eigen.propagator import box_propagator, planar_propagator
 from kindyn.errors import CaseError
 
@@ -127,22 +129,9 @@ def _time_grid(case, kind: str, dt_at_unit_cfl: float) -> tuple[float, int]:
         dt = flow.period / steps
     else:
         dt, steps = _steady_steps(settings, dt_max, 1.0 / (flow.speed * flow.wavenumber))
-    _check_stability(case, dt, dt_at_unit_cfl)
+    key, value = ("modes.time_step", settings.time_step) if settings.time_step else ("modes.cfl", settings.cfl)
+    check_stability(case.run.scheme, dt / dt_at_unit_cfl, case.path, key, value)
     return dt, steps
-
-
-def _check_stability(case, dt: float, dt_at_unit_cfl: float) -> None:
-    """Refuse a step beyond the scheme's stability limit for advection (as ``kindyn run`` does)."""
-    from kindyn.stepping import TABLEAUX
-
-    tableau = TABLEAUX[case.run.scheme]
-    courant = dt / dt_at_unit_cfl
-    if tableau.imaginary_stability and courant > tableau.imaginary_stability:
-        settings = case.modes
-        key, value = ("modes.time_step", settings.time_step) if settings.time_step else ("modes.cfl", settings.cfl)
-        raise CaseError(case.path, key, value,
-                        f"a step within the {tableau.name} stability limit: dt sum_i max|u_i| k_max,i = "
-                        f"{courant:.3g} exceeds {tableau.imaginary_stability:.3g}")
 
 
 def _arpack(settings) -> dict:
@@ -177,13 +166,12 @@ def _modes_of(solution: EigenSolution, kz) -> list:
 
 def _solve_box(case, count, kind, progress, with_fields) -> dict:
     from kindyn.diagnostics.spectra import cutoff_ratio
-    from kindyn.run import transform_settings
+    from kindyn.layout import BoxLayout
     from kindyn.timestep import cfl_time_step
-    from kindyn.transforms import physical_from_spectral
 
     box, flow, settings = case.box, case.flow, case.modes
-    dt, steps = _time_grid(case, kind, cfl_time_step(flow, box, 1.0))
-    propagator = box_propagator(box, flow, case.eta, dt, steps, transform_settings(case), case.run.scheme)
+    dt, steps = _time_grid(case, kind, cfl_time_step(flow, BoxLayout(box), 1.0))
+    propagator = box_propagator(box, flow, case.eta, dt, steps, transform_settings(case.numerics), case.run.scheme)
     if progress:
         progress(f"box {list(box.grid)}: {propagator.size} unknowns, T = {propagator.time:.4g}, "
                  f"{steps} steps of {dt:.4g}")
@@ -192,22 +180,20 @@ def _solve_box(case, count, kind, progress, with_fields) -> dict:
     modes = _modes_of(solution, None)
     nfields = min(len(modes), count if settings.fields is None else settings.fields) if with_fields else 0
     fields, cutoff = [], 0.0
-    engine = propagator.solver.engine
+    layout = propagator.solver.layout
     for j in range(len(modes)):
         if j >= max(nfields, 1):
             break
         re_hat, im_hat = propagator.basis.complex_field_hat(solution.vectors[:, j])
         if j == 0:
-            cutoff = cutoff_ratio(np.concatenate([re_hat, im_hat]), box)
+            cutoff = cutoff_ratio(np.concatenate([re_hat, im_hat]), layout)
         if j < nfields:
-            fields.append((physical_from_spectral(engine, re_hat), physical_from_spectral(engine, im_hat)))
+            fields.append((layout.physical_from_spectral(re_hat), layout.physical_from_spectral(im_hat)))
     return {"modes": modes, "fields": fields, "dt": dt, "T": propagator.time, "applications": solution.applications,
             "cutoff": cutoff, "solutions": {None: solution}}
 
 
 def _solve_planar(case, count, kind, progress, with_fields) -> dict:
-    from kindyn.run import transform_settings
-
     box, flow, settings = case.box, case.flow, case.modes
     plane = settings.planar_grid or box.grid[:2]
     lengths = box.lengths[:2]
@@ -219,7 +205,7 @@ def _solve_planar(case, count, kind, progress, with_fields) -> dict:
     for kz in wavenumbers:
         grid = PlanarGrid(lengths, plane, kz)
         propagator = planar_propagator(grid, flow, case.eta, dt, steps, case.run.scheme,
-                                       transforms=transform_settings(case))
+                                       transforms=transform_settings(case.numerics))
         if progress:
             progress(f"planar {list(plane)}, kz = {kz:.6g}: {propagator.size} unknowns, T = {propagator.time:.4g}")
         solve = floquet_modes if kind == "periodic" else leading_eigenpairs
@@ -237,12 +223,12 @@ def _solve_planar(case, count, kind, progress, with_fields) -> dict:
             break
         b_hat = propagator.field_hat(vector)
         if j == 0:
-            cutoff = planar_cutoff_ratio(b_hat, propagator.solver.grid)
+            cutoff = planar_cutoff_ratio(b_hat, propagator.solver.layout.plane)
         if j < nfields:
             engine = propagator.solver.engine
             engine.spectral[...] = b_hat
             engine.backward()
-            b = engine.physical.copy()
+            b = engine.real[..., 0].copy()
             fields.append((b.real.copy(), b.imag.copy()))
     return {"modes": [c[0] for c in candidates], "fields": fields, "dt": dt, "T": steps * dt,
             "applications": applications, "cutoff": cutoff, "solutions": solutions, "planar_grid": tuple(plane)}

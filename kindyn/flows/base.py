@@ -12,7 +12,15 @@ A flow is a frozen dataclass of its parameters with
 * ``check_box(box)``: raise :class:`~kindyn.errors.ParameterError` when the flow is not periodic
   in the box or needs modes the grid does not keep after dealiasing.
 
-Flows never import transforms or stepping: they are formulas (or data) in physical space.
+Optionally, a flow that is defined by Fourier data offers one of
+
+* ``fourier_modes(t) -> (modes (M, 3) ints, coefficients (M, 3) complex)`` with
+  ``u = sum_r 2 Re(c_r exp(i k_r.x))`` (random helical ensembles), or
+* ``fourier_coefficients(t) -> (3, nx, ny, nz//2+1)`` half-grid coefficients on the case's grid, or
+  ``None`` (velocity files, projected user flows),
+
+and a layout (:mod:`kindyn.layout`) then synthesises the velocity on the points it holds with its
+own transform. Flows never import transforms or stepping: they are formulas (or data).
 """
 
 from __future__ import annotations

@@ -34,9 +34,9 @@ the band and box lengths only, so the same seed gives the same flow on any grid 
   ``n = floor(t/tau)`` (``t/tau`` within 1e-9 of a whole number is rounded to it, so round-off in
   ``t`` never selects the previous interval). ``renewal = "redraw"`` draws new amplitudes,
   ``"shift"`` translates the first draw by a random vector, ``"redraw-shift"`` does both.
-  At an interval boundary the velocity is the new realisation; the induction operator samples the
-  last Runge–Kutta stage of a step that ends on a renewal inside that step, so each step sees one
-  realisation only (:meth:`kindyn.induction.InductionOperator._evaluation_time`).
+  At an interval boundary the velocity is the new realisation; the stepper evaluates every stage
+  of a step inside the step's renewal interval (``constant_between`` of
+  :class:`~kindyn.stepping.IntegratingFactorStepper`), so each step sees one realisation only.
 * ``"ornstein-uhlenbeck"`` (correlation time ``tau``): every amplitude is an OU process
   ``da = -a dt/tau + sqrt(2/tau) s dW`` with stationary variance ``s^2``, started from its stationary
   law. The path is sampled exactly on a fine grid ``t_i = i tau/OU_STEPS_PER_TAU`` (``a_{i+1} =
@@ -55,7 +55,6 @@ import numpy as np
 
 from kindyn.errors import ParameterError
 from kindyn.flows.base import finite, positive
-from kindyn.flows.gridded import grid_from_hat, is_box_grid
 
 SPECTRA = ("shell", "power-law", "table")
 TIME_MODELS = ("steady", "renovating", "ornstein-uhlenbeck")
@@ -263,11 +262,13 @@ class RandomHelicalFlow:
                                      f"band (mode number {int(m)} must be below n/3 after dealiasing)")
 
     def velocity(self, x, y, z, t):
-        c = self.coefficients(t)
-        box = self.box
-        if box is not None and is_box_grid(box, x, y, z):
-            return tuple(self._grid_field(t, c))
-        return _mode_sum(c, self._cache["k"], x, y, z)
+        """``u = sum_r 2 Re(c_r exp(i k_r.x))`` summed mode by mode at any coordinates; on a grid a
+        layout synthesises it with its own transform from :meth:`fourier_modes`."""
+        return _mode_sum(self.coefficients(t), self._cache["k"], x, y, z)
+
+    def fourier_modes(self, t: float) -> tuple[np.ndarray, np.ndarray]:
+        """Integer mode numbers ``(M, 3)`` and coefficients ``(M, 3)`` of ``u = sum_r 2 Re(c_r exp(i k_r.x))``."""
+        return self.modes, self.coefficients(t)
 
     # --- amplitudes -----------------------------------------------------------------------------
     def coefficients(self, t: float) -> np.ndarray:
@@ -358,30 +359,6 @@ class RandomHelicalFlow:
         path[1:], _ = lfilter([1.0], [1.0, -rho], kicks, axis=0, zi=rho * start[None, :])
         return path
 
-    # --- evaluation -----------------------------------------------------------------------------
-    def coefficients_hat(self, t: float, box=None) -> np.ndarray:
-        """Half-grid coefficients ``(3, nx, ny, nz//2+1)`` on ``box`` (default: the case's box)."""
-        box = box or self.box
-        c = self.coefficients(t)
-        u_hat = np.zeros((3, *box.spectral_shape), dtype=complex)
-        m = self.modes
-        nx, ny, _ = box.grid
-        ix, iy, iz = m[:, 0] % nx, m[:, 1] % ny, m[:, 2]
-        u_hat[:, ix, iy, iz] = c.T
-        plane = m[:, 2] == 0  # the m_z = 0 plane holds both members of each pair
-        u_hat[:, (-m[plane, 0]) % nx, (-m[plane, 1]) % ny, 0] = np.conj(c[plane]).T
-        return u_hat
-
-    def _grid_field(self, t: float, c: np.ndarray) -> np.ndarray:
-        """The field on the full grid; cached while it is constant (steady, one renewal interval)."""
-        if self.time_dependence == "ornstein-uhlenbeck":
-            return grid_from_hat(self.coefficients_hat(t), self.box.grid)
-        key = self._renewal_index(t) if self.time_dependence == "renovating" else 0
-        cache = self._cache
-        if cache.get("grid_key") != key:
-            cache["grid_field"] = grid_from_hat(self.coefficients_hat(t), self.box.grid)
-            cache["grid_key"] = key
-        return cache["grid_field"]
 
 def _mode_sum(c: np.ndarray, k: np.ndarray, x, y, z):
     """``u = sum_r 2 Re(c_r exp(i k_r.x))`` at broadcastable coordinates (no grid needed)."""

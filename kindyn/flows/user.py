@@ -73,6 +73,16 @@ class SampledVelocity:
     def projected_hat(self, t: float) -> np.ndarray:
         return checks.project_solenoidal(hat_from_grid(self.grid(t)), self.box)
 
+    def fourier_coefficients(self, t: float) -> np.ndarray | None:
+        """Half-grid coefficients of the projected (solenoidal) velocity; ``None`` when the flow is used
+        as given (a layout then evaluates it on its own points)."""
+        if not self.project:
+            return None
+        u_hat = self._cache["hat"] if self.steady and "hat" in self._cache else self.projected_hat(t)
+        if self.steady:
+            self._cache["hat"] = u_hat
+        return u_hat
+
     def velocity(self, x, y, z, t):
         on_grid = is_box_grid(self.box, x, y, z)
         if self.steady and "grid" in self._cache and on_grid:
@@ -220,6 +230,9 @@ class FormulaFlow:
     def velocity(self, x, y, z, t):
         return self.sampler.velocity(x, y, z, t)
 
+    def fourier_coefficients(self, t: float):
+        return self.sampler.fourier_coefficients(t)
+
     def check_box(self, box) -> None:
         _same_box(self.sampler.box, box)
 
@@ -299,6 +312,9 @@ class CallableFlow:
 
     def velocity(self, x, y, z, t):
         return self.sampler.velocity(x, y, z, t)
+
+    def fourier_coefficients(self, t: float):
+        return self.sampler.fourier_coefficients(t)
 
     def check_box(self, box) -> None:
         _same_box(self.sampler.box, box)

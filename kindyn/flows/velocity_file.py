@@ -23,7 +23,6 @@ from __future__ import annotations
 from dataclasses import dataclass, field
 from pathlib import Path
 
-import netCDF4
 import numpy as np
 
 from kindyn.errors import ParameterError
@@ -38,6 +37,8 @@ ENDS = ("hold", "loop")
 def read_velocity_file(path: Path, names, box, spec):
     """``(times or None, data (S, 3, nx', ny', nz'))`` from the file; raise on layout problems."""
     try:
+        import netCDF4  # here, not at import: validating a case must not load netCDF4
+
         ds = netCDF4.Dataset(path)
     except (OSError, RuntimeError) as exc:
         raise ParameterError("file", spec, f"a readable netCDF file ({path}: {exc})") from None
@@ -181,6 +182,11 @@ class VelocityFileFlow:
             return self.coefficients[0]
         i, j, f = self.weights(t)
         return (1 - f) * self.coefficients[i] + f * self.coefficients[j]
+
+    def fourier_coefficients(self, t: float) -> np.ndarray:
+        """Half-grid coefficients ``(3, nx, ny, nz//2+1)`` on the case's grid at ``t`` (a layout
+        synthesises the velocity from them with its own transform)."""
+        return self.coefficients_at(t)
 
     def _snapshot_grid(self, i: int) -> np.ndarray:
         store = self._cache.setdefault("grids", {})

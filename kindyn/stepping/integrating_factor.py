@@ -25,6 +25,14 @@ The stages are then computed on the packed values only. Outside the support ``N`
 there ``y`` is advanced exactly by ``E(h) y``: the result is the same as the unpacked scheme, with
 about a third of the memory traffic and memory. This module knows nothing about magnetism.
 
+Right-hand sides that are constant in time between breaks (a renovating flow is redrawn at
+multiples of its renewal time ``tau`` and constant in between) are declared with
+``constant_between = tau``: steps must then lie inside one interval ``[n tau, (n+1) tau]``, and
+every stage of a step is evaluated at the step's midpoint, so that the last stage of a step that
+ends on a break still sees that step's interval (a stage time equal to the break would belong to
+the next one). For such a right-hand side this is exact, and ``N`` stays a pure function of
+``(t, y)``.
+
 The sums themselves (``total += w K``, ``Y = E y_n + sum w_j K_j``, ``y <- E(h) y + total``) are
 formed by an array-kernel set handed in by the caller (:mod:`kindyn.array_kernels`: one fused pass
 per stage with numba, blocked numpy otherwise).
@@ -111,8 +119,12 @@ class IntegratingFactorStepper:
     :mod:`kindyn.array_kernels`).
     """
 
-    def __init__(self, rhs, decay_rates: np.ndarray, tableau: Tableau, shape, dtype, kernels):
+    def __init__(self, rhs, decay_rates: np.ndarray, tableau: Tableau, shape, dtype, kernels,
+                 constant_between: float | None = None):
         self.rhs, self.rates, self.tableau, self.kernels = rhs, np.asarray(decay_rates), tableau, kernels
+        if constant_between is not None and not constant_between > 0:
+            raise ValueError(f"constant_between must be a positive interval, got {constant_between}")
+        self.constant_between = constant_between
         self.shape = tuple(shape)
         self.support = getattr(rhs, "support", None) if hasattr(rhs, "packed") else None
         if self.support is None:
@@ -149,9 +161,23 @@ class IntegratingFactorStepper:
             self._decay = np.exp(-self.rates.astype(np.float64) * h).astype(self.rates.dtype)
             self._h = h
 
+    def _stage_times(self, t: float, h: float) -> list[float]:
+        """``t + c_i h``; for a right-hand side constant between breaks, the step's midpoint for every
+        stage (after checking that the step lies inside one interval)."""
+        tau = self.constant_between
+        if tau is None:
+            return [t + ci * h for ci in self.tableau.c]
+        start, end = t / tau, (t + h) / tau
+        slack = 1e-9 * max(1.0, abs(end))
+        if np.floor(start + slack) < np.ceil(end - slack) - 1:
+            raise ValueError(f"the step [{t:.17g}, {t + h:.17g}] crosses a break of a right-hand side that is "
+                             f"constant between multiples of {tau:.17g}: align the steps with the breaks")
+        return [t + 0.5 * h] * self.tableau.stages
+
     def step(self, t: float, y: np.ndarray, h: float) -> None:
         tab = self.tableau
         self._weights(h)
+        times = self._stage_times(t, h)
         if self.support is not None:
             work, evaluate = self.kernels.gather(self.support, y, self._packed_y), self.rhs.packed
         else:
@@ -164,7 +190,7 @@ class IntegratingFactorStepper:
                 rhs(s, value.reshape(shape), out.reshape(shape))
         stage = self._combine(None, 0, work)
         for i in range(tab.stages):
-            evaluate(t + tab.c[i] * h, stage, self._stages[self._slot_of[i]])
+            evaluate(times[i], stage, self._stages[self._slot_of[i]])
             stage = self._combine(i, i + 1 if i + 1 < tab.stages else None, work)
         if self._first_final is None:  # no stage contributes: pure decay
             y *= self._decay

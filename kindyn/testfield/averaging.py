@@ -40,11 +40,8 @@ from dataclasses import dataclass, field
 import numpy as np
 
 from kindyn.errors import NumericalError
-from kindyn.array_kernels import make_kernels
-from kindyn.stepping import TABLEAUX, IntegratingFactorStepper
-from kindyn.testfield.problems import TestProblemOperator
+from kindyn.testfield.problems import TestProblems
 from kindyn.timestep import cfl_time_step, flow_time_period
-from kindyn.transforms import make_engine
 
 MIN_MEAN_BLOCKS = 4
 RUNAWAY_LOG_ENERGY = 20.0  # energy grown by e^20 (5e8) within one cycle
@@ -72,11 +69,11 @@ class TimeSettings:
         return None if self.reset_blocks is None else self.reset_blocks * self.block_length
 
 
-def time_settings(flow, box, eta: float, plan, cfl: float, time_step: float | None) -> TimeSettings:
+def time_settings(flow, layout, eta: float, plan, cfl: float, time_step: float | None) -> TimeSettings:
     """Choose the step and the blocks (see module docstring and ``[testfield]`` keys)."""
     period = flow_time_period(flow)
     turnover = 1.0 / (flow.speed * flow.wavenumber)
-    dt = time_step if time_step else cfl_time_step(flow, box, cfl)
+    dt = time_step if time_step else cfl_time_step(flow, layout, cfl)
     if not math.isfinite(dt):
         dt = 0.1 * turnover
     if period:
@@ -107,17 +104,14 @@ class ProblemGroup:
     arrays (names starting with ``alpha`` or ``eta``; SOCA ones end in ``_soca``).
     """
 
-    def __init__(self, box, flow, eta, fields, axis, transforms, scheme: str, coefficients):
-        self.box, self.coefficients = box, coefficients
+    def __init__(self, layout, flow, eta, fields, axis, scheme: str, coefficients, kernels=None):
+        self.layout, self.coefficients = layout, coefficients
         self.operators, self.steppers, self.states = [], [], []
         for soca in (False, True):
-            engine = make_engine(box, transforms, 3 * len(fields))
-            op = TestProblemOperator(box, flow, engine, eta, fields, axis, soca=soca)
-            self.operators.append(op)
-            self.steppers.append(IntegratingFactorStepper(op, op.decay_rates, TABLEAUX[scheme],
-                                                          engine.spectral.shape, engine.spectral.dtype,
-                                                          make_kernels(transforms.array_kernels)))
-            self.states.append(np.zeros(engine.spectral.shape, dtype=engine.spectral.dtype))
+            problems = TestProblems(layout, flow, eta, fields, axis, soca=soca, scheme=scheme, kernels=kernels)
+            self.operators.append(problems)
+            self.steppers.append(problems.stepper)
+            self.states.append(np.zeros(problems.shape, dtype=layout.complex_dtype))
 
     def step(self, t: float, dt: float) -> None:
         for stepper, state in zip(self.steppers, self.states):
@@ -132,9 +126,7 @@ class ProblemGroup:
 
     def energy(self) -> float:
         """``<|b|^2>/2`` summed over the full test problems."""
-        w = self.box.parseval_weights
-        b = self.states[0]
-        return 0.5 * float(np.sum(w * (b.real ** 2 + b.imag ** 2)))
+        return self.layout.energy(self.states[0])
 
 
 def block_standard_error(values: np.ndarray) -> np.ndarray:

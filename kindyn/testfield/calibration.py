@@ -25,9 +25,11 @@ from kindyn.testfield.extraction import (alpha_from_uniform, beta_from_eta, coef
                                          horizontal_parts, planar_tests)
 from kindyn.testfield.fields import uniform_test_fields
 from kindyn.testfield.kernels import fit_lorentzian
-from kindyn.testfield.problems import TestProblemOperator
+from kindyn.array_kernels import make_kernels
+from kindyn.assemble import transform_settings
+from kindyn.layout import BoxLayout
+from kindyn.testfield.problems import TestProblems
 from kindyn.testfield.settings import plan_from_case
-from kindyn.transforms import TransformSettings, make_engine
 
 SOCA_CAUTION = ("SOCA (second-order correlation approximation) is valid only at small Rm or short correlation "
                 "time; compare alpha_soca with alpha before using it")
@@ -84,9 +86,9 @@ class TestFieldResult:
         return np.stack([beta_from_eta(e, self.axis) for e in self.tensors["eta_K" + sfx]])
 
 
-def _transforms(case) -> TransformSettings:
-    n = case.numerics
-    return TransformSettings(n.fft, n.threads, n.planning, "double", n.array_kernels)
+def _layout(case) -> BoxLayout:
+    """The box layout of the test problems: always double precision."""
+    return BoxLayout(case.box, transform_settings(case.numerics, precision="double"))
 
 
 def _planar_coefficients(groups_of_fields, s):
@@ -109,7 +111,8 @@ def _uniform_coefficients(full, soca):
 
 def _direct(case, plan, result: TestFieldResult, progress) -> None:
     box, flow, eta = case.box, case.flow, case.eta
-    engine = make_engine(box, _transforms(case), 3)
+    layout = _layout(case)
+    kernels = make_kernels(layout.transforms.array_kernels, layout.transforms.threads, layout.real_dtype)
     jobs = []
     if plan.uniform:
         jobs.append(("uniform", None, [uniform_test_fields()]))
@@ -118,7 +121,7 @@ def _direct(case, plan, result: TestFieldResult, progress) -> None:
         for name, axis, field_sets in jobs:
             sources = []
             for f in (f for fields in field_sets for f in fields):
-                op = TestProblemOperator(box, flow, engine, eta, [f], axis)
+                op = TestProblems(layout, flow, eta, [f], axis, kernels=kernels)
                 sources.append(op.source(0.0, np.empty(op.shape, dtype=complex)))
             rate = steady.leading_growth_rate(op, sources)
             result.onset_growth_rates[name] = rate
@@ -134,7 +137,7 @@ def _direct(case, plan, result: TestFieldResult, progress) -> None:
         emf_full, emf_soca = [], []
         for fields in field_sets:
             for f in fields:
-                op = TestProblemOperator(box, flow, engine, eta, [f], axis)
+                op = TestProblems(layout, flow, eta, [f], axis, kernels=kernels)
                 b_soca = steady.soca_solution(op)
                 b_full, info = steady.full_solution(op, plan.solver_tolerance)
                 residuals.append(info["residual"])
@@ -156,15 +159,17 @@ def _direct(case, plan, result: TestFieldResult, progress) -> None:
 
 def _time(case, plan, result: TestFieldResult, progress) -> None:
     box, flow, eta = case.box, case.flow, case.eta
-    settings = time_settings(flow, box, eta, plan, case.run.cfl, case.run.time_step)
+    layout = _layout(case)
+    kernels = make_kernels(layout.transforms.array_kernels, layout.transforms.threads, layout.real_dtype)
+    settings = time_settings(flow, layout, eta, plan, case.run.cfl, case.run.time_step)
     groups = []
     if plan.uniform:
-        groups.append(ProblemGroup(box, flow, eta, uniform_test_fields(), None, _transforms(case), case.run.scheme,
-                                   _uniform_coefficients))
+        groups.append(ProblemGroup(layout, flow, eta, uniform_test_fields(), None, case.run.scheme,
+                                   _uniform_coefficients, kernels))
     field_sets = planar_tests(plan.axis, plan.modes, plan.wavenumbers)
     flat = [f for fields in field_sets for f in fields]
-    groups.append(ProblemGroup(box, flow, eta, flat, plan.axis, _transforms(case), case.run.scheme,
-                               _planar_coefficients(field_sets, box.axis(plan.axis))))
+    groups.append(ProblemGroup(layout, flow, eta, flat, plan.axis, case.run.scheme,
+                               _planar_coefficients(field_sets, box.axis(plan.axis)), kernels))
     scales = {"alpha": flow.speed, "eta": flow.speed / flow.wavenumber}
     report = (lambda t, worst: progress(f"t = {t:10.4g}   worst error / tolerance = {worst:.3g}")) if progress else None
     outcome = integrate(groups, settings, scales, plan.tolerance, report)
@@ -225,6 +230,6 @@ def _closure(case, plan, result, direct_run) -> dict:
     except NumericalError as exc:
         rate, error, b_hat = math.nan, math.nan, None
         result.notes.append(f"closure check: the direct run failed ({exc})")
-    share = box_scale_mean_share(b_hat, case.box, plan.axis) if b_hat is not None else None
+    share = box_scale_mean_share(b_hat, BoxLayout(case.box), plan.axis) if b_hat is not None else None
     return closure_report(float(a[i]), float(e[i]), result.tensors["alpha_K"][i], result.tensors["eta_K"][i],
                           case.eta, K1, plan.axis, case.flow.wavenumber, rate, error, share)

@@ -50,14 +50,14 @@ def anisotropic_growth_rate(alpha: np.ndarray, eta_tensor: np.ndarray, eta: floa
     return complex(values[np.argmax(values.real)])
 
 
-def box_scale_mean_share(b_hat: np.ndarray, box, axis: int) -> float:
-    """Share of ``<|B|^2>`` in the planar-mean modes ``m_s = +-1`` along ``axis``."""
-    w = box.parseval_weights
+def box_scale_mean_share(b_hat: np.ndarray, layout, axis: int) -> float:
+    """Share of ``<|B|^2>`` in the planar-mean modes ``m_s = +-1`` along ``axis`` (``layout`` holds ``b_hat``)."""
+    w = layout.parseval_weights
     density = w * sum(c.real ** 2 + c.imag ** 2 for c in b_hat)
-    total = float(density.sum())
-    m = box.mode_numbers[axis]
-    pick = mean_mode_mask(box, axis) & np.broadcast_to(np.abs(m) == 1, box.spectral_shape)
-    return float(density[pick].sum()) / total if total > 0 else math.nan
+    total = float(layout.total(density.sum()))
+    m = layout.mode_numbers[axis]
+    pick = mean_mode_mask(layout, axis) & np.broadcast_to(np.abs(m) == 1, layout.spectral_shape)
+    return float(layout.total(density[pick].sum())) / total if total > 0 else math.nan
 
 
 def closure_report(alpha: float, eta_t: float, alpha_tensor, eta_tensor, eta: float, K: float, axis: int,

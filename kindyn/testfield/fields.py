@@ -12,10 +12,12 @@ Test fields (mean fields ``B_T`` prescribed in the test problems):
   with **planar averages** over the two other coordinates. They are solenoidal and satisfy
   ``curl B_T = grad(c) x e_j = c'(s) e_s x e_j`` with ``c = cos`` or ``sin``.
 
-Averages on the half grid (axis order ``(component, x, y, z)``, see :mod:`kindyn.box`): the box
-average of ``f`` is the ``k = 0`` coefficient; the planar average ``<f>(s)`` keeps exactly the
-modes whose mode numbers vanish on the two perpendicular axes (:func:`mean_mode_mask`), and
-``f' = f - <f>`` removes them. Mean profiles along ``s`` are returned on the grid points of ``s``.
+Averages (axis order ``(component, x, y, z)``), through the layout that holds the field
+(:mod:`kindyn.layout`): the box average of ``f`` is its ``k = 0`` coefficient; the planar average
+``<f>(s)`` keeps exactly the modes whose mode numbers vanish on the two perpendicular axes
+(:func:`mean_mode_mask`), and ``f' = f - <f>`` removes them. Mean profiles along ``s`` are
+returned on the grid points of ``s``, summed from the (dealiased) mean modes with their Parseval
+weights and reduced over processes, so that nothing here depends on where a mode is held.
 """
 
 from __future__ import annotations
@@ -72,13 +74,12 @@ class TestField:
         e_s, e_j = np.eye(3)[self.axis], np.eye(3)[self.component]
         return np.cross(e_s, e_j)[:, None] * self.derivative(s)[None, :]
 
-    def physical(self, box) -> np.ndarray:
-        """``B_T`` on the grid, shape ``(3, nx, ny, nz)``."""
-        out = np.zeros((3, *box.shape))
-        s = box.axis(self.axis)
-        shape = [1, 1, 1]
-        shape[self.axis] = s.size
-        out[self.component] = self.profile(s).reshape(shape)
+    def physical(self, layout) -> np.ndarray:
+        """``B_T`` on the layout's local points, shape ``(3, ...)`` broadcasting to the local grid (only
+        the averaging axis has its full local length)."""
+        s = np.asarray(layout.coordinates[self.axis])
+        out = np.zeros((3, *s.shape))
+        out[self.component] = self.profile(s)
         return out
 
 
@@ -93,33 +94,31 @@ def sinusoidal_test_fields(axis: int, mode: int, wavenumber: float) -> tuple[Tes
     return tuple(TestField(j, kind, axis, mode, wavenumber) for j in perpendicular for kind in ("cos", "sin"))
 
 
-def mean_mode_mask(box, axis: int | None) -> np.ndarray:
-    """Boolean half-grid mask of the modes that make up the average.
+def mean_mode_mask(layout, axis: int | None) -> np.ndarray:
+    """Local boolean mask of the modes that make up the average.
 
     ``axis=None``: box average (only ``k = 0``). Otherwise the planar average whose result depends
     on coordinate ``axis``: modes with zero mode numbers on the two other axes.
     """
-    m = box.mode_numbers
-    if axis is None:
-        mask = (m[0] == 0) & (m[1] == 0) & (m[2] == 0)
-    else:
-        others = [i for i in range(3) if i != axis]
-        mask = (m[others[0]] == 0) & (m[others[1]] == 0)
-    return np.broadcast_to(mask, box.spectral_shape).copy()
+    return layout.mean_mode_mask(axis)
 
 
-def mean_profile(f_hat: np.ndarray, box, axis: int | None) -> np.ndarray:
-    """Average of the real field with coefficients ``f_hat`` (shape ``(..., *spectral_shape)``).
+def mean_profile(f_hat: np.ndarray, layout, axis: int | None) -> np.ndarray:
+    """Average of the real field with local coefficients ``f_hat`` (shape ``(..., *spectral_shape)``).
 
     Box average (``axis=None``): shape ``(...)``. Planar average: shape ``(..., n_axis)``, the
-    values of the dealiased mean at the grid points of ``axis``.
+    values of the dealiased mean at the grid points of ``axis``:
+    ``<f>(s_j) = sum_m w_m Re(f_hat_m exp(i k_m s_j))`` over the local mean modes, reduced over processes.
     """
-    kept = box.dealias_mask
+    mask = np.broadcast_to(layout.mean_mode_mask(axis) & layout.dealias_mask, layout.spectral_shape)
+    flat = np.flatnonzero(mask)
+    lead = f_hat.shape[:-3]
+    values = f_hat.reshape(*lead, -1)[..., flat] * np.broadcast_to(layout.parseval_weights,
+                                                                    layout.spectral_shape).ravel()[flat]
     if axis is None:
-        return f_hat[..., 0, 0, 0].real.copy()
-    n = box.grid[axis]
-    if axis == 2:
-        line = f_hat[..., 0, 0, :] * kept[0, 0, :]
-        return np.fft.irfft(line, n=n, axis=-1, norm="forward")
-    line = f_hat[..., :, 0, 0] * kept[:, 0, 0] if axis == 0 else f_hat[..., 0, :, 0] * kept[0, :, 0]
-    return np.fft.ifft(line, n=n, axis=-1, norm="forward").real
+        return np.asarray(layout.total(values.real.sum(axis=-1)))
+    k = np.broadcast_to(layout.wavenumbers[axis], layout.spectral_shape).ravel()[flat]
+    n, L = layout.grid[axis], layout.lengths[axis]
+    s = np.arange(n) * (L / n)
+    phases = np.exp(1j * np.outer(k, s))  # (modes, n)
+    return np.asarray(layout.total((values @ phases).real))

@@ -32,11 +32,14 @@ from threadpoolctl import threadpool_limits
 from kindyn.errors import NumericalError
 
 
-def hermitian_part(b_hat: np.ndarray, box) -> np.ndarray:
+def hermitian_part(b_hat: np.ndarray, layout) -> np.ndarray:
     """Copy of ``b_hat`` with the ``m_z = 0`` (and even-grid Nyquist) planes made Hermitian:
-    ``b(m) <- (b(m) + conj(b(-m)))/2`` over ``(m_x, m_y)``."""
+    ``b(m) <- (b(m) + conj(b(-m)))/2`` over ``(m_x, m_y)``. Needs a layout that holds whole
+    ``(m_x, m_y)`` planes (serial; the direct steady solves run in one process)."""
+    if getattr(layout, "processes", 1) != 1:
+        raise ValueError("the direct steady test-field solves need a serial layout")
     out = b_hat.copy()
-    nx, ny, nz = box.grid
+    nx, ny, nz = layout.grid
     rx, ry = (-np.arange(nx)) % nx, (-np.arange(ny)) % ny
     planes = [0] + ([nz // 2] if nz % 2 == 0 and nz > 1 else [])
     for p in planes:
@@ -49,7 +52,8 @@ def hermitian_part(b_hat: np.ndarray, box) -> np.ndarray:
 def _diffusion(operator) -> np.ndarray:
     """``eta |k|^2`` with the k = 0 value replaced by ``eta k_1^2`` (it only multiplies zeros)."""
     d = operator.decay_rates.copy()
-    d[0, 0, 0] = operator.eta * operator.box.smallest_wavenumber ** 2
+    if operator.layout.uniform_mode is not None:
+        d[operator.layout.uniform_mode] = operator.eta * operator.layout.smallest_wavenumber ** 2
     return d
 
 
@@ -67,7 +71,7 @@ def full_solution(operator, tolerance: float = 1e-11, restart: int = 80, max_res
     with ``info = {"residual": relative residual of (I - D^-1 N) b = D^-1 S, "iterations": n}``.
     Raises :class:`~kindyn.errors.NumericalError` when GMRES does not reach ``100 x tolerance``.
     """
-    box, shape = operator.box, operator.shape
+    box, shape = operator.layout, operator.shape
     D = _diffusion(operator)
     work = np.empty(shape, dtype=complex)
     counter = {"n": 0}
@@ -111,7 +115,7 @@ def leading_growth_rate(operator, seed_sources=None, count: int = 3, tolerance: 
     subspace that no test field reaches, and those do not spoil the steady solution. Returns
     ``nan`` when ARPACK does not converge.
     """
-    box, shape = operator.box, operator.shape
+    box, shape = operator.layout, operator.shape
     D = _diffusion(operator)
     work = np.empty(shape, dtype=complex)
 

@@ -70,3 +70,20 @@ class FFTWEngine:
                          box.points, destroy_input=True)
         self.forward = plans.forward    # spectral <- FFT(real)/N; forward(normalise=False): the plain sum
         self.backward = plans.backward  # real <- inverse FFT(spectral); destroys spectral
+
+
+class FFTWPlanarEngine:
+    """Batched complex 2-D transforms over axes ``(1, 2)`` with pyfftw plans built once."""
+
+    name = "fftw"
+
+    def __init__(self, grid: tuple[int, int], ncomp: int = 3, threads: int = 1, planning: str = "measure"):
+        from kindyn.transforms.planar import checked_plane
+
+        nx, ny = checked_plane(grid)
+        self.grid, self.ncomp = (nx, ny), ncomp
+        self.physical = pyfftw.empty_aligned((ncomp, nx, ny), dtype=np.complex128)
+        self.spectral = pyfftw.empty_aligned((ncomp, nx, ny), dtype=np.complex128)
+        plans = PlanPair(self.physical, self.spectral, (1, 2), planning, threads, nx * ny)
+        self.forward = plans.forward    # spectral <- FFT2(physical)/(nx ny); normalise=False: the plain sum
+        self.backward = plans.backward  # physical <- inverse FFT2(spectral); spectral kept

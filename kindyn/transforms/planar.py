@@ -28,7 +28,7 @@ class ScipyPlanarEngine:
     name = "scipy"
 
     def __init__(self, grid: tuple[int, int], ncomp: int = 3, threads: int = 1):
-        nx, ny = _checked(grid)
+        nx, ny = checked_plane(grid)
         self.grid, self.ncomp, self.workers = (nx, ny), ncomp, int(threads)
         self.physical = np.zeros((ncomp, nx, ny), dtype=np.complex128)
         self.spectral = np.zeros((ncomp, nx, ny), dtype=np.complex128)
@@ -41,38 +41,22 @@ class ScipyPlanarEngine:
         self.physical[...] = scipy.fft.ifft2(self.spectral, axes=(1, 2), norm="forward", workers=self.workers)
 
 
-class FFTWPlanarEngine:
-    """Batched complex 2-D transforms over axes ``(1, 2)`` with pyfftw plans built once."""
-
-    name = "fftw"
-
-    def __init__(self, grid: tuple[int, int], ncomp: int = 3, threads: int = 1, planning: str = "measure"):
-        import pyfftw
-
-        from kindyn.transforms.fftw import PlanPair
-
-        nx, ny = _checked(grid)
-        self.grid, self.ncomp = (nx, ny), ncomp
-        self.physical = pyfftw.empty_aligned((ncomp, nx, ny), dtype=np.complex128)
-        self.spectral = pyfftw.empty_aligned((ncomp, nx, ny), dtype=np.complex128)
-        plans = PlanPair(self.physical, self.spectral, (1, 2), planning, threads, nx * ny)
-        self.forward = plans.forward    # spectral <- FFT2(physical)/(nx ny); normalise=False: the plain sum
-        self.backward = plans.backward  # physical <- inverse FFT2(spectral); spectral kept
-
-
 def make_planar_engine(grid, ncomp: int = 3, engine: str = "fftw", threads: int = 1, planning: str = "measure"):
     """The planar engine named ``engine`` (``"fftw"`` falls back to ``"scipy"`` without pyfftw)."""
     if engine == "fftw":
         try:
-            return FFTWPlanarEngine(grid, ncomp, threads, planning)
+            from kindyn.transforms.fftw import FFTWPlanarEngine
         except ImportError:
             pass
+        else:
+            return FFTWPlanarEngine(grid, ncomp, threads, planning)
     elif engine != "scipy":
         raise ValueError(f"unknown planar transform engine {engine!r}; expected 'fftw' or 'scipy'")
     return ScipyPlanarEngine(grid, ncomp, threads)
 
 
-def _checked(grid) -> tuple[int, int]:
+def checked_plane(grid) -> tuple[int, int]:
+    """``(nx, ny)`` as positive integers, or ValueError."""
     nx, ny = (int(n) for n in grid)
     if nx < 1 or ny < 1:
         raise ValueError(f"planar grid sizes must be positive, got {grid}")

@@ -1,0 +1,112 @@
+"""Assembly: layout, induction operator and stepper from configuration slices, in one place.
+
+Every driver (runs, eigen-solves, test fields, sweeps through them) builds its solver here:
+
+* :func:`build_solver` — the 3-D problem on a :class:`~kindyn.layout.BoxLayout`;
+* :func:`build_planar_solver` — the planar reduction at one ``k_z`` on a :class:`~kindyn.layout.PlanarLayout`;
+* :func:`build_test_solver` — stacked test problems (fluctuations about mean test fields) on a box layout.
+
+Each gets only what it needs: the geometry, the flow, ``eta``, a
+:class:`~kindyn.transforms.TransformSettings` and the scheme name. The stability check of a time
+step against the scheme's limit is here too (:func:`check_stability`), once for every driver.
+"""
+
+from __future__ import annotations
+
+from dataclasses import dataclass
+
+from kindyn.array_kernels import choose_threads, make_kernels
+from kindyn.box import Box
+from kindyn.errors import CaseError
+from kindyn.induction import InductionOperator
+from kindyn.layout import BoxLayout, PlanarGrid, PlanarLayout
+from kindyn.stepping import TABLEAUX, IntegratingFactorStepper
+from kindyn.transforms import TransformSettings
+
+
+@dataclass
+class Solver:
+    """The pieces that advance ``b_hat``: layout (with its engine), induction operator and stepper."""
+
+    layout: object
+    operator: InductionOperator
+    stepper: IntegratingFactorStepper
+
+    @property
+    def engine(self):
+        return self.operator.engine
+
+    @property
+    def kernels_used(self) -> str:
+        """The array-kernel set and its threads, as chosen when the solver was built."""
+        kernels = self.operator.kernels
+        return f"{kernels.name}, {kernels.threads} thread{'s' if kernels.threads != 1 else ''}"
+
+
+def transform_settings(numerics, precision: str | None = None) -> TransformSettings:
+    """The transform settings of a ``[numerics]`` configuration slice (``precision`` overrides it)."""
+    return TransformSettings(numerics.fft, numerics.threads, numerics.planning, precision or numerics.precision,
+                             numerics.array_kernels)
+
+
+def renewal_interval(flow) -> float | None:
+    """The interval between the breaks of a flow that is constant in time between them (renovating
+    flows: ``renewal_time``), handed to the stepper; ``None`` for every other flow."""
+    return getattr(flow, "renewal_time", None) or None
+
+
+def _stepper(operator: InductionOperator, scheme: str, kernels, flow) -> IntegratingFactorStepper:
+    return IntegratingFactorStepper(operator, operator.decay_rates, TABLEAUX[scheme], operator.shape,
+                                    operator.engine.spectral.dtype, kernels, constant_between=renewal_interval(flow))
+
+
+def build_solver(geometry, flow, eta: float, transforms: TransformSettings = TransformSettings(),
+                 scheme: str = "rk4") -> Solver:
+    """The 3-D solver on ``geometry`` (a :class:`~kindyn.box.Box`, or a layout already made).
+
+    The array kernels' threads are measured (:func:`kindyn.array_kernels.choose_threads`) on whole
+    operator evaluations.
+    """
+    layout = BoxLayout(geometry, transforms) if isinstance(geometry, Box) else geometry
+    kernels = make_kernels(transforms.array_kernels, transforms.threads, layout.real_dtype)
+    operator = InductionOperator(layout, flow, eta, kernels)
+    choose_threads(kernels, operator.timing_probe())
+    return Solver(layout, operator, _stepper(operator, scheme, kernels, flow))
+
+
+def build_planar_solver(grid: PlanarGrid, flow, eta: float, scheme: str = "rk4",
+                        transforms: TransformSettings = TransformSettings()) -> Solver:
+    """The planar solver at ``grid.kz`` (double precision; array kernels on one thread: they are a
+    small part of the planar step)."""
+    layout = PlanarLayout(grid, transforms)
+    kernels = make_kernels(transforms.array_kernels)
+    operator = InductionOperator(layout, flow, eta, kernels)
+    return Solver(layout, operator, _stepper(operator, scheme, kernels, flow))
+
+
+def build_test_solver(layout: BoxLayout, flow, eta: float, mean_field, fluctuation_of, soca: bool,
+                      scheme: str = "rk4", kernels=None) -> Solver:
+    """Stacked test problems about the mean test fields ``mean_field`` ``(n, 3, ...)`` with the modes of
+    the average ``fluctuation_of`` removed (see :class:`~kindyn.induction.InductionOperator`)."""
+    if kernels is None:
+        kernels = make_kernels(layout.transforms.array_kernels, layout.transforms.threads, layout.real_dtype)
+    operator = InductionOperator(layout, flow, eta, kernels, fields=len(mean_field), mean_field=mean_field,
+                                 fluctuation_of=fluctuation_of, soca=soca)
+    return Solver(layout, operator, _stepper(operator, scheme, kernels, flow))
+
+
+def check_stability(scheme: str, courant: float, file: str, key: str, value, rate: float | None = None) -> None:
+    """Refuse a time step beyond the scheme's stability limit for advection (before computing).
+
+    ``courant = dt sum_i max|u_i| k_max,i`` bounds ``|lambda dt|`` of the advective part; it must stay
+    below the tableau's limit on the imaginary axis, or the run would report the growth of a
+    numerical instability. ``key``/``value`` name the case key that set the step; ``rate`` (the
+    advection rate ``courant/dt``) lets the message say which step would do.
+    """
+    tableau = TABLEAUX[scheme]
+    limit = tableau.imaginary_stability
+    if limit and courant > limit:
+        advice = f" (time_step <= {limit / rate:.3g}, cfl <= {limit:.3g})" if rate else ""
+        raise CaseError(file, key, value,
+                        f"a step within the {tableau.name} stability limit: dt sum_i max|u_i| k_max,i = "
+                        f"{courant:.3g} exceeds {limit:.3g}{advice}")
