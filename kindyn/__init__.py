@@ -9,6 +9,21 @@ Conventions (fixed once for the whole package):
   (last axis ``kz >= 0``).
 * Magnetic energy ``E_M = <|B|^2>/2``; amplitude ``~ exp(gamma t)``; eigenvalue ``p = gamma + i omega``.
 * ``Rm = U/(eta k_f)`` with each flow's declared speed ``U`` and wavenumber ``k_f``.
+
+Entry points for notebooks and scripts (:mod:`kindyn.api`; loaded on first use, so that
+``import kindyn`` stays light): :func:`load_case`, :func:`growth`, :func:`eigenmodes`,
+:func:`coefficients`, :func:`flow_statistics`, :func:`parameter_sweep`.
 """
 
-__version__ = "0.1.0"
+from kindyn._version import __version__
+
+_ENTRY_POINTS = ("coefficients", "eigenmodes", "flow_statistics", "growth", "load_case", "parameter_sweep")
+__all__ = ["__version__", *_ENTRY_POINTS]
+
+
+def __getattr__(name):
+    if name in _ENTRY_POINTS:
+        from kindyn import api
+
+        return getattr(api, name)
+    raise AttributeError(f"module 'kindyn' has no attribute {name!r}")
