@@ -21,7 +21,8 @@ from threadpoolctl import threadpool_limits
 
 from kindyn.assemble import build_solver, check_stability, transform_settings
 from kindyn.diagnostics.growth import GrowthEstimate, estimate_growth
-from kindyn.diagnostics.spectra import cutoff_ratio, shell_spectrum
+from kindyn.diagnostics.measures import MAGNETIC_ENERGY, run_series
+from kindyn.diagnostics.spectra import shell_spectrum
 from kindyn.errors import CaseError, NumericalError
 from kindyn.fields import flow_field_hat, probe_indices, probe_vector, random_field_hat
 from kindyn.layout import BoxLayout
@@ -43,6 +44,7 @@ class Record:
     estimate_times: list = field(default_factory=list)
     estimate_rates: list = field(default_factory=list)
     estimate_errors: list = field(default_factory=list)
+    series: dict = field(default_factory=dict)  # name -> samples of each measure of run_series
 
     def strobed(self, every: int):
         """Samples at whole multiples of ``every`` (whole flow periods), as arrays."""
@@ -105,6 +107,7 @@ def run_growth(case, progress=None, checkpoint=None) -> RunOutcome:
     if settings.min_time > max_time:
         raise CaseError(case.path, "run.min_time", settings.min_time, f"at most run.max_time = {max_time:g}")
     indices = probe_indices(layout)
+    measures = run_series(flow.z_independent)
     record, t, step, log_amp = Record(), 0.0, 0, 0.0
     state = checkpoint.load(case) if checkpoint else None
     if state:
@@ -117,7 +120,7 @@ def run_growth(case, progress=None, checkpoint=None) -> RunOutcome:
     stop_reason = ""
     samples_since_estimate = 0
     if not record.times:
-        _sample(record, b_hat, layout, t, log_amp, indices)
+        _sample(record, b_hat, layout, t, log_amp, indices, measures)
     while True:
         for _ in range(timing.steps_per_sample):
             if step >= settings.max_steps:
@@ -128,7 +131,7 @@ def run_growth(case, progress=None, checkpoint=None) -> RunOutcome:
         if step >= settings.max_steps and len(record.times) and record.times[-1] != t:
             stop_reason = f"reached max_steps = {settings.max_steps} before converging"
             break
-        log_amp = _sample(record, b_hat, layout, t, log_amp, indices, step)
+        log_amp = _sample(record, b_hat, layout, t, log_amp, indices, measures, step)
         samples_since_estimate += 1
         due = max(CHECKS_PER_ESTIMATE, len(record.times) // ESTIMATES_PER_RECORD)
         if samples_since_estimate >= due * timing.samples_per_strobe:
@@ -156,7 +159,7 @@ def run_growth(case, progress=None, checkpoint=None) -> RunOutcome:
             last_save = now
     if record.estimate_times and record.estimate_times[-1] != t:
         estimate = _estimate(record, timing, tolerance, flow)
-    ratio = cutoff_ratio(b_hat, layout, axes=(0, 1) if flow.z_independent else (0, 1, 2))
+    ratio = settled_cutoff_ratio(record)
     field = layout.physical_from_spectral(b_hat)
     return RunOutcome(estimate, record, b_hat, field, shell_spectrum(b_hat, layout), ratio,
                       ratio > settings.resolution_threshold, step, t, timing, stop_reason,
@@ -180,9 +183,21 @@ def _estimate(record: Record, timing: Timing, tolerance: float, flow=None) -> Gr
         return estimate_growth(*record.strobed(timing.samples_per_strobe), tolerance=tolerance)
 
 
-def _sample(record: Record, b_hat, layout, t, log_amp, indices, step=0) -> float:
+def settled_cutoff_ratio(record: Record) -> float:
+    """The resolution guard's cut-off ratio averaged over the second half of the record.
+
+    The last sample alone flickers (a growing oscillatory mode moves energy between shells within a
+    period), so a run and the same run resumed could disagree; the mean over the second half of the
+    samples is a property of the mode, the same for both (the series is checkpointed)."""
+    values = np.asarray(record.series.get("cutoff_ratio", []), float)
+    if values.size == 0:
+        return 0.0
+    return float(np.mean(values[values.size // 2:]))
+
+
+def _sample(record: Record, b_hat, layout, t, log_amp, indices, measures, step=0) -> float:
     """Record one sample, renormalise ``b_hat`` to unit energy, return the new log-amplitude."""
-    e = layout.energy(b_hat)
+    e = MAGNETIC_ENERGY.evaluate(layout, b_hat)
     previous = record.log_energy[-1] if record.log_energy else None
     if not math.isfinite(e) or e <= 0:
         raise NumericalError(f"magnetic energy became {e} at step {step}, t = {t:.6g} "
@@ -199,4 +214,6 @@ def _sample(record: Record, b_hat, layout, t, log_amp, indices, step=0) -> float
     record.probes.append(probe_vector(b_hat, indices))
     scale = 1.0 / math.sqrt(e)
     b_hat *= scale
+    for measure in measures:  # intensive quantities: the same for the renormalised field
+        record.series.setdefault(measure.name, []).append(measure.evaluate(layout, b_hat))
     return log_amp + 0.5 * math.log(e)

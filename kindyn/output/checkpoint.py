@@ -37,6 +37,8 @@ class Checkpoint:
                 values = np.asarray(getattr(rec, name), float)
                 ds.createDimension(name, values.size)
                 ds.createVariable(name, "f8", (name,))[...] = values
+            for name, values in rec.series.items():  # the measures of every sample (one per time)
+                ds.createVariable(f"series_{name}", "f8", ("times",))[...] = np.asarray(values, float)
             probes = np.asarray(rec.probes, float).reshape(len(rec.probes), -1)
             ds.createDimension("probe", probes.shape[1])
             ds.createVariable("probes", "f8", ("times", "probe"))[...] = probes
@@ -52,6 +54,8 @@ class Checkpoint:
                 return None
             record = {name: list(np.asarray(data[name], float)) for name in _SERIES}
             record["probes"] = list(np.asarray(data["probes"], float))
+            record["series"] = {name[len("series_"):]: list(np.asarray(values, float))
+                                for name, values in data.items() if name.startswith("series_")}
             field = np.asarray(data["field_real"]) + 1j * np.asarray(data["field_imag"])
             return {"field_hat": field, "time": float(attributes["time"]), "step": int(attributes["step"]),
                     "log_amplitude": float(attributes["log_amplitude"]), "record": record}

@@ -11,6 +11,7 @@ from __future__ import annotations
 
 import numpy as np
 
+from kindyn.diagnostics.measures import MAGNETIC_ENERGY, SPECTRUM, run_series
 from kindyn.diagnostics.spectra import resolution_caution
 from kindyn.output.netcdf import provenance_attributes, add_grid, add_variable, atomic_dataset, set_attributes
 
@@ -68,7 +69,11 @@ def write_growth_file(path, case, outcome, field_physical=None, extra=None) -> N
         add_variable(ds, "time", ("time",), np.asarray(rec.times), units="1", long_name="simulation time",
                      standard_name="time", axis="T")
         add_variable(ds, "magnetic_energy_log", ("time",), np.asarray(rec.log_energy),
-                     long_name="natural logarithm of the magnetic energy <|B|^2>/2 (renormalisation undone)")
+                     long_name=f"natural logarithm of the {MAGNETIC_ENERGY.long_name} (renormalisation undone)")
+        for measure in run_series(case.flow.z_independent):
+            if measure.name in rec.series:
+                add_variable(ds, measure.name, ("time", *measure.dims), np.asarray(rec.series[measure.name], float),
+                             long_name=measure.long_name, units=measure.units)
         ds.createDimension("estimate", len(rec.estimate_times))
         add_variable(ds, "estimate_time", ("estimate",), np.asarray(rec.estimate_times), long_name="time of growth estimate")
         add_variable(ds, "growth_rate_estimate", ("estimate",), np.asarray(rec.estimate_rates, float),
@@ -78,8 +83,7 @@ def write_growth_file(path, case, outcome, field_physical=None, extra=None) -> N
         k, spectrum = outcome.spectrum
         ds.createDimension("wavenumber", k.size)
         add_variable(ds, "wavenumber", ("wavenumber",), k, long_name="shell wavenumber |k|")
-        add_variable(ds, "magnetic_energy_spectrum", ("wavenumber",), spectrum,
-                     long_name="shell spectrum of the final (unit-energy) magnetic field")
+        add_variable(ds, SPECTRUM.name, SPECTRUM.dims, spectrum, long_name=SPECTRUM.long_name, units=SPECTRUM.units)
         if field_physical is not None:
             add_grid(ds, case.box)
             for i, axis in enumerate("xyz"):
