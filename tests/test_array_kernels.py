@@ -22,7 +22,6 @@ from kindyn.flows import ABCFlow, GallowayProctorFlow
 from kindyn.array_kernels import KERNEL_SETS, choose_threads, configure_openmp_wait, make_kernels, numba_available
 from kindyn.assemble import build_planar_solver, build_solver
 from kindyn.layout import BoxLayout, PlanarGrid
-from kindyn.stepping.integrating_factor import BlockSupport
 from kindyn.transforms import TransformSettings
 
 GRIDS = [(8, 8, 8), (9, 9, 9), (12, 10, 7), (7, 12, 10)]

@@ -11,15 +11,12 @@ Runtime: about 5 s on two idle cores.
 from __future__ import annotations
 
 import json
-import math
 
 import numpy as np
 import pytest
 from threadpoolctl import threadpool_limits
 
-from kindyn.case import load_case
 from kindyn.cli import main
-from kindyn.eigen.solve import solve_modes, sweep_point
 from kindyn.output.netcdf import read_dataset
 
 try:
@@ -100,16 +97,6 @@ def test_box_method_writes_three_dimensional_eigenfields(tmp_path, capsys):
     # unit energy <|B_r|^2 + |B_i|^2>/2 and zero mean (the neutral k = 0 mode is excluded)
     assert 0.5 * np.mean(np.sum(real**2 + imag**2, axis=0)) == pytest.approx(1.0, rel=1e-10)
     assert np.max(np.abs(real.mean(axis=(1, 2, 3)))) < 1e-12
-
-
-def test_sweep_point_reports_the_leading_mode(tmp_path):
-    case = load_case(_write(tmp_path, ABC, "abc"))
-    point = sweep_point(case)
-    outcome = solve_modes(case, with_fields=False)
-    assert point["growth_rate"] == pytest.approx(outcome.leading.growth_rate, abs=1e-8)
-    assert point["converged"] and point["method"] == "box" and point["kz"] is None
-    assert len(point["eigenvalues"]) == len(point["residuals"]) == 1
-    assert math.isfinite(point["frequency"])
 
 
 @pytest.mark.parametrize("overrides, message", [

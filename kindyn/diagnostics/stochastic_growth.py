@@ -23,6 +23,8 @@ import math
 
 import numpy as np
 
+from kindyn.diagnostics.batch_means import batch_means_error
+
 from kindyn.diagnostics.growth import GrowthEstimate
 
 BLOCK_CORRELATION_TIMES = 4.0
@@ -37,17 +39,10 @@ def renewal_samples(times: np.ndarray, renewal_time: float) -> np.ndarray:
 
 
 def block_error(increments: np.ndarray, first_block: int, min_blocks: int) -> tuple[float, int]:
-    """Largest standard error of the mean increment over block sizes ``b, 2b, 4b, ...``."""
-    n = increments.size
-    b, worst, blocks_used = max(1, first_block), 0.0, 0
-    while n // b >= min_blocks:
-        blocks = n // b
-        means = increments[: blocks * b].reshape(blocks, b).mean(axis=1)
-        error = float(np.std(means, ddof=1)) / math.sqrt(blocks)
-        if error >= worst:
-            worst, blocks_used = error, blocks
-        b *= 2
-    return (worst, blocks_used) if blocks_used else (math.inf, n // max(1, first_block))
+    """Largest standard error of the mean increment over block sizes ``b, 2b, 4b, ...``
+    (:func:`kindyn.diagnostics.batch_means.batch_means_error`)."""
+    error, blocks = batch_means_error(increments, first_block, min_blocks)
+    return float(error), blocks
 
 
 def estimate_stochastic_growth(times, log_energy, tolerance: float, renewal_time: float | None = None,

@@ -5,6 +5,6 @@ Modules: :mod:`~kindyn.eigen.basis` (vector parametrisations), :mod:`~kindyn.eig
 :mod:`~kindyn.eigen.krylov` (Arnoldi/ARPACK, ``mu -> p``),
 :mod:`~kindyn.eigen.floquet` (period maps), :mod:`~kindyn.eigen.planar` (``B = b(x, y) exp(i k_z z)``),
 :mod:`~kindyn.eigen.settings` (the ``[modes]`` case keys) and :mod:`~kindyn.eigen.solve` (case ->
-leading modes; :func:`~kindyn.eigen.solve.sweep_point` for sweeps). Nothing is imported here, so that
+leading modes; :func:`~kindyn.eigen.solve.point_summary` for sweeps). Nothing is imported here, so that
 registering the case keys stays cheap.
 """

@@ -245,24 +245,14 @@ def _check_plane(case, plane) -> None:
         raise CaseError(case.path, "modes.planar_grid", list(plane), exc.expected) from None
 
 
-def sweep_point(case, count: int | None = 1) -> dict:
-    """Eigen-solve of one sweep point: the leading mode's numbers as a flat dict.
-
-    Only the leading mode is needed for a growth-rate sweep, and asking ARPACK for one eigenvalue (a
-    conjugate pair stays whole) is several times cheaper than for four; ``count=None`` uses
-    ``modes.count`` of the case instead.
+def point_summary(case, outcome: ModesOutcome) -> dict:
+    """The leading mode's numbers as a flat dict (a sweep point solved by eigen-solve).
 
     Keys: ``growth_rate``, ``frequency`` (None-free floats), ``residual``, ``converged`` (ARPACK
     converged and residual below ``100 * modes.tolerance``), ``kz`` (planar; None for box),
     ``method``, ``periodic``, ``frequency_modulus`` (``2 pi/T`` for Floquet modes, else None),
     ``eigenvalues`` (list of ``[gamma, omega]``), ``residuals``, ``Rm``, ``eta``, ``U``, ``k_f``,
     ``cutoff_ratio``, ``resolution_warning``, ``wall_seconds``, ``propagations``.
-    """
-    return point_summary(case, solve_modes(case, count=count, with_fields=False))
-
-
-def point_summary(case, outcome: ModesOutcome) -> dict:
-    """The leading mode's numbers as a flat dict (see :func:`sweep_point`).
 
     ``growth_rate_error`` is the first-order bound ``residual / T`` on the eigenvalue of the
     propagator mapped back to ``p`` (``|d mu| <= residual |mu|`` and ``dp = d mu/(mu T)``).

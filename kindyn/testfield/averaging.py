@@ -39,6 +39,7 @@ from dataclasses import dataclass, field
 
 import numpy as np
 
+from kindyn.diagnostics.batch_means import batch_means_error
 from kindyn.errors import NumericalError
 from kindyn.testfield.problems import TestProblems
 from kindyn.timestep import cfl_time_step, flow_time_period
@@ -130,21 +131,13 @@ class ProblemGroup:
 
 
 def block_standard_error(values: np.ndarray) -> np.ndarray:
-    """Standard error of the mean of ``values`` (shape ``(N, ...)``) from batch means (see module doc)."""
+    """Standard error of the mean of ``values`` (shape ``(N, ...)``) from batch means (see module doc;
+    :func:`kindyn.diagnostics.batch_means.batch_means_error`): single samples first, then batches of
+    2, 4, ... while at least four remain."""
     values = np.asarray(values, float)
-    n = values.shape[0]
-    if n < 2:
+    if values.shape[0] < 2:
         return np.full(values.shape[1:], np.inf)
-    best = np.zeros(values.shape[1:])
-    size = 1
-    while n // size >= MIN_MEAN_BLOCKS or size == 1:
-        batches = n // size
-        if batches < 2:
-            break
-        means = values[:batches * size].reshape(batches, size, *values.shape[1:]).mean(axis=1)
-        best = np.maximum(best, means.std(axis=0, ddof=1) / math.sqrt(batches))
-        size *= 2
-    return best
+    return batch_means_error(values, 1, MIN_MEAN_BLOCKS, first_min_batches=2)[0]
 
 
 @dataclass
