@@ -3,7 +3,7 @@
 Every driver (runs, eigen-solves, test fields, sweeps through them) builds its solver here:
 
 * :func:`build_solver` — the 3-D problem on a :class:`~kindyn.layout.BoxLayout`;
-* :func:`build_planar_solver` — the planar reduction at one ``k_z`` on a :class:`~kindyn.layout.PlanarLayout`;
+* :func:`build_kz_plane_solver` — the single-k_z reduction at one ``k_z`` (the "planar" method) on a :class:`~kindyn.layout.KzPlaneLayout`;
 * :func:`build_test_solver` — stacked test problems (fluctuations about mean test fields) on a box layout.
 
 Each gets only what it needs: the geometry, the flow, ``eta``, a
@@ -19,7 +19,7 @@ from kindyn.array_kernels import choose_threads, make_kernels
 from kindyn.box import Box
 from kindyn.errors import CaseError
 from kindyn.induction import InductionOperator
-from kindyn.layout import BoxLayout, PlanarGrid, PlanarLayout
+from kindyn.layout import BoxLayout, KzPlane, KzPlaneLayout
 from kindyn.stepping import TABLEAUX, IntegratingFactorStepper
 from kindyn.transforms import TransformSettings
 
@@ -74,11 +74,11 @@ def build_solver(geometry, flow, eta: float, transforms: TransformSettings = Tra
     return Solver(layout, operator, _stepper(operator, scheme, kernels, flow))
 
 
-def build_planar_solver(grid: PlanarGrid, flow, eta: float, scheme: str = "rk4",
+def build_kz_plane_solver(grid: KzPlane, flow, eta: float, scheme: str = "rk4",
                         transforms: TransformSettings = TransformSettings()) -> Solver:
     """The planar solver at ``grid.kz`` (double precision; array kernels on one thread: they are a
-    small part of the planar step)."""
-    layout = PlanarLayout(grid, transforms)
+    small part of that step)."""
+    layout = KzPlaneLayout(grid, transforms)
     kernels = make_kernels(transforms.array_kernels)
     operator = InductionOperator(layout, flow, eta, kernels)
     return Solver(layout, operator, _stepper(operator, scheme, kernels, flow))

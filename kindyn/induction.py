@@ -14,8 +14,8 @@ stepper, which integrates them exactly.
 The same operator serves every problem kindyn solves, through its parameters:
 
 * the **3-D run** and the **eigen-solves**: ``N b = curl(u x b)`` on a :class:`~kindyn.layout.BoxLayout`;
-* the **planar reduction** of a z-independent flow at fixed ``k_z``: the same on a
-  :class:`~kindyn.layout.PlanarLayout` (complex ``b``, ``d/dz -> i k_z``);
+* the **single-k_z reduction** ("planar" method) of a z-independent flow at fixed ``k_z``: the same on a
+  :class:`~kindyn.layout.KzPlaneLayout` (complex ``b``, ``d/dz -> i k_z``);
 * the **test problems** of the test-field method, ``n`` stacked fluctuation fields ``b`` about
   prescribed mean test fields ``B_T`` (``mean_field``) with the modes of an average removed
   (``fluctuation_of``)::

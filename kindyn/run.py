@@ -24,7 +24,7 @@ from kindyn.diagnostics.growth import GrowthEstimate, estimate_growth
 from kindyn.diagnostics.measures import MAGNETIC_ENERGY, run_series
 from kindyn.diagnostics.spectra import shell_spectrum
 from kindyn.errors import CaseError, NumericalError
-from kindyn.fields import flow_field_hat, probe_indices, probe_vector, random_field_hat
+from kindyn.initial_fields import flow_field_hat, probe_indices, probe_vector, random_field_hat
 from kindyn.layout import BoxLayout
 from kindyn.timestep import Timing, choose_timing
 

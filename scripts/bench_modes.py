@@ -36,9 +36,9 @@ def time_per_step(stepper, y, dt, steps) -> float:
 
 def planar_versus_box(n: int, steps: int) -> None:
     from kindyn.box import Box
-    from kindyn.assemble import build_planar_solver, build_solver
+    from kindyn.assemble import build_kz_plane_solver, build_solver
     from kindyn.flows.cellular import RobertsFlow
-    from kindyn.layout import PlanarGrid
+    from kindyn.layout import KzPlane
     from kindyn.transforms import TransformSettings
 
     flow, eta, dt, two_pi = RobertsFlow(), 0.1, 0.01, 2 * math.pi
@@ -47,7 +47,7 @@ def planar_versus_box(n: int, steps: int) -> None:
     solver = build_solver(box, flow, eta, TransformSettings(engine="fftw", planning="measure"))
     y3 = (rng.standard_normal(solver.engine.spectral.shape) * box.dealias_mask).astype(complex)
     t3 = time_per_step(solver.stepper, y3, dt, steps)
-    planar = build_planar_solver(PlanarGrid((two_pi, two_pi), (n, n), 1.0), flow, eta)
+    planar = build_kz_plane_solver(KzPlane((two_pi, two_pi), (n, n), 1.0), flow, eta)
     y2 = (rng.standard_normal(planar.engine.spectral.shape) * planar.layout.dealias_mask).astype(complex)
     t2 = time_per_step(planar.stepper, y2, dt, steps * 10)
     print(f"(i) time per RK4 step: 3-D {n}^3 {t3 * 1e3:.2f} ms, planar {n}^2 {t2 * 1e3:.3f} ms; "

@@ -43,8 +43,8 @@ def write_case(tmp_path):
 @pytest.fixture
 def random_field():
     """``random_field(box, engine, seed=1, peak=None) -> b_hat``: unit-energy, solenoidal, zero-mean,
-    inside the 2/3-rule band (kindyn.fields.random_field_hat; its properties are tested elsewhere)."""
-    from kindyn.fields import random_field_hat
+    inside the 2/3-rule band (kindyn.initial_fields.random_field_hat; its properties are tested elsewhere)."""
+    from kindyn.initial_fields import random_field_hat
 
     def make(box, engine, seed: int = 1, peak: float | None = None):
         from kindyn.layout import BoxLayout

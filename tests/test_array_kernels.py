@@ -20,8 +20,8 @@ from kindyn.case import load_case
 from kindyn.errors import CaseError
 from kindyn.flows import ABCFlow, GallowayProctorFlow
 from kindyn.array_kernels import KERNEL_SETS, choose_threads, configure_openmp_wait, make_kernels, numba_available
-from kindyn.assemble import build_planar_solver, build_solver
-from kindyn.layout import BoxLayout, PlanarGrid
+from kindyn.assemble import build_kz_plane_solver, build_solver
+from kindyn.layout import BoxLayout, KzPlane
 from kindyn.transforms import TransformSettings
 
 GRIDS = [(8, 8, 8), (9, 9, 9), (12, 10, 7), (7, 12, 10)]
@@ -248,7 +248,7 @@ def test_planar_and_test_field_steppers_agree_between_kernel_sets():
 
     planar = []
     for name in ("numpy", "numba"):
-        solver = build_planar_solver(PlanarGrid((2 * math.pi,) * 2, (10, 11), 0.5), RobertsFlow(), 0.2,
+        solver = build_kz_plane_solver(KzPlane((2 * math.pi,) * 2, (10, 11), 0.5), RobertsFlow(), 0.2,
                                      "rk3", TransformSettings(planning="estimate", array_kernels=name))
         b = np.zeros(solver.engine.spectral.shape, complex)
         b[:, 1, 2, 0], b[:, 9, 1, 0] = (1.0, -0.5j, 0.3), (0.2, 0.4, -1.0)

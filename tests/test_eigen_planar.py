@@ -24,13 +24,13 @@ from threadpoolctl import threadpool_limits
 from kindyn.box import Box
 from kindyn.calculus import divergence_hat
 from kindyn.diagnostics.spectra import energy
-from kindyn.eigen.basis import PlanarBasis, SolenoidalBasis
-from kindyn.eigen.floquet import box_period_map, floquet_modes, planar_period_map
+from kindyn.eigen.basis import KzPlaneBasis, SolenoidalBasis
+from kindyn.eigen.floquet import box_period_map, floquet_modes, kz_plane_period_map
 from kindyn.eigen.krylov import leading_eigenpairs
-from kindyn.eigen.planar import is_z_independent
+from kindyn.eigen.z_independent import is_z_independent
 from kindyn.induction import InductionOperator
-from kindyn.layout import BoxLayout, PlanarGrid, PlanarLayout
-from kindyn.eigen.propagator import box_propagator, planar_propagator
+from kindyn.layout import BoxLayout, KzPlane, KzPlaneLayout
+from kindyn.eigen.propagator import box_propagator, kz_plane_propagator
 from kindyn.errors import FlowError
 from kindyn.flows.beltrami import ABCFlow
 from kindyn.flows.cellular import GallowayProctorFlow, RobertsFlow
@@ -71,9 +71,9 @@ def test_box_basis_is_an_energy_isometry_onto_real_solenoidal_fields(grid, lengt
 
 @pytest.mark.parametrize("kz", [0.0, 0.7])
 def test_planar_basis_is_solenoidal_and_isometric(kz):
-    grid = PlanarGrid((TWO_PI, 5.0), (10, 11), kz)
-    layout = PlanarLayout(grid)
-    basis = PlanarBasis(layout)
+    grid = KzPlane((TWO_PI, 5.0), (10, 11), kz)
+    layout = KzPlaneLayout(grid)
+    basis = KzPlaneBasis(layout)
     rng = np.random.default_rng(4)
     v = rng.standard_normal(basis.size) + 1j * rng.standard_normal(basis.size)
     b_hat = basis.field_hat_from_vector(v, np.empty((3, 10, 11, 1), complex))
@@ -97,11 +97,11 @@ def _reference_layout(b_hat, M, n):
     (16, 0.57, 0.2, GallowayProctorFlow(), rg.galloway_proctor_velocity_coefficients(0.9), "scipy"),
 ], ids=["roberts-sum", "roberts-product-odd-kz0", "gp-at-t0.9"])
 def test_planar_operator_equals_dense_galerkin_matrix(n, kz, eta, flow, coeffs, engine):
-    grid = PlanarGrid((TWO_PI, TWO_PI), (n, n), kz)
+    grid = KzPlane((TWO_PI, TWO_PI), (n, n), kz)
     M = (n - 1) // 3
-    layout = PlanarLayout(grid, TransformSettings(engine=engine))
+    layout = KzPlaneLayout(grid, TransformSettings(engine=engine))
     operator = InductionOperator(layout, flow, eta)
-    basis = PlanarBasis(layout)
+    basis = KzPlaneBasis(layout)
     rng = np.random.default_rng(5)
     b_hat = basis.field_hat_from_vector(rng.standard_normal(basis.size) + 1j * rng.standard_normal(basis.size),
                                         np.empty((3, n, n, 1), complex))
@@ -117,7 +117,7 @@ def test_planar_operator_equals_dense_galerkin_matrix(n, kz, eta, flow, coeffs, 
 def _union_of_planar(flow, eta, kzs, n, dt, steps, count):
     values = []
     for kz in kzs:
-        sol = leading_eigenpairs(planar_propagator(PlanarGrid((TWO_PI, TWO_PI), n, kz), flow, eta, dt, steps),
+        sol = leading_eigenpairs(kz_plane_propagator(KzPlane((TWO_PI, TWO_PI), n, kz), flow, eta, dt, steps),
                                  count, tolerance=1e-13)
         values += list(sol.eigenvalues)
         if kz > 0:
@@ -154,7 +154,7 @@ def test_planar_galloway_proctor_floquet_equals_box():
     flow = GallowayProctorFlow()
     box = Box((TWO_PI, TWO_PI, TWO_PI / kz), (*plane, 4))
     box_solution = floquet_modes(box_period_map(box, flow, eta, dt), 3, tolerance=1e-13)
-    planar = floquet_modes(planar_period_map(PlanarGrid((TWO_PI, TWO_PI), plane, kz), flow, eta, dt), 3,
+    planar = floquet_modes(kz_plane_period_map(KzPlane((TWO_PI, TWO_PI), plane, kz), flow, eta, dt), 3,
                            tolerance=1e-13)
     # the leading Floquet mode (gamma ~ 0.2 at kz = 0.57) and its -kz conjugate lead the box spectrum
     lead = planar.eigenvalues[0]
@@ -194,8 +194,8 @@ def test_z_independence_is_declared_and_checked():
 # ------------------------------------------------------------------- the two Krylov solvers agree
 def test_growing_arnoldi_arpack_and_the_fallback_agree_with_the_dense_reference():
     # Roberts flow, eta = 0.2, kz = 0.5 on a 16^2 plane (|m| <= 5, as M = 5 in the reference)
-    grid = PlanarGrid((TWO_PI, TWO_PI), (16, 16), 0.5)
-    propagator = planar_propagator(grid, RobertsFlow(), 0.2, 0.05, 20)
+    grid = KzPlane((TWO_PI, TWO_PI), (16, 16), 0.5)
+    propagator = kz_plane_propagator(grid, RobertsFlow(), 0.2, 0.05, 20)
     with threadpool_limits(limits=1, user_api="blas"):
         dense = rg.leading_eigenvalues(rg.roberts_velocity_coefficients(), 1.0, 0.5, 0.2, 5, count=3)
     results = [leading_eigenpairs(propagator, 3, tolerance=1e-12, solver="arnoldi"),

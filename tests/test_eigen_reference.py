@@ -22,11 +22,11 @@ import numpy as np
 import pytest
 from threadpoolctl import threadpool_limits
 
-from kindyn.eigen.floquet import floquet_modes, planar_period_map
+from kindyn.eigen.floquet import floquet_modes, kz_plane_period_map
 from kindyn.eigen.krylov import leading_eigenpairs
-from kindyn.eigen.planar import planar_cutoff_ratio, planar_time_step
-from kindyn.layout import PlanarGrid
-from kindyn.eigen.propagator import planar_propagator
+from kindyn.eigen.z_independent import kz_plane_cutoff_ratio, kz_plane_time_step
+from kindyn.layout import KzPlane
+from kindyn.eigen.propagator import kz_plane_propagator
 from kindyn.flows.cellular import GallowayProctorFlow, RobertsFlow
 
 try:
@@ -47,10 +47,10 @@ ROBERTS_REFERENCE = {
 
 
 def planar_eigenvalues(flow, eta, kz, n, count, dt=None, T=0.5):
-    grid = PlanarGrid((TWO_PI, TWO_PI), (n, n), kz)
-    dt = dt or planar_time_step(flow, grid, 1.0)
+    grid = KzPlane((TWO_PI, TWO_PI), (n, n), kz)
+    dt = dt or kz_plane_time_step(flow, grid, 1.0)
     steps = 2 * math.ceil(T / (2 * dt))
-    return leading_eigenpairs(planar_propagator(grid, flow, eta, T / steps, steps), count, tolerance=1e-12)
+    return leading_eigenpairs(kz_plane_propagator(grid, flow, eta, T / steps, steps), count, tolerance=1e-12)
 
 
 @pytest.mark.parametrize("eta, kz", list(ROBERTS_REFERENCE))
@@ -70,8 +70,8 @@ def test_roberts_top_three_match_dense_reference(eta, kz):
 def test_galloway_proctor_floquet_matches_dense_reference():
     # quoted from the reference's floquet_multipliers (magnus4): eta = 0.2, kz = 0.57,
     # gamma = +0.20761235, omega = -0.0645 (mod 1)
-    grid = PlanarGrid((TWO_PI, TWO_PI), (32, 32), 0.57)
-    solution = floquet_modes(planar_period_map(grid, GallowayProctorFlow(), 0.2, 0.05), 2, tolerance=1e-12)
+    grid = KzPlane((TWO_PI, TWO_PI), (32, 32), 0.57)
+    solution = floquet_modes(kz_plane_period_map(grid, GallowayProctorFlow(), 0.2, 0.05), 2, tolerance=1e-12)
     lead = solution.eigenvalues[0]
     assert lead.real == pytest.approx(0.20761235, abs=1e-7)
     assert lead.imag == pytest.approx(-0.0645, abs=1e-4)
@@ -83,8 +83,8 @@ def test_steady_flow_as_periodic_floquet_exponents_are_eigenvalues():
     # T = 2 pi / 3 (omega = 3): Floquet exponents = eigenvalues, Im modulo 3 (exact).
     eta, kz, n = 0.15, 0.6, 22
     flow = GallowayProctorFlow(epsilon=0.0, omega=3.0)
-    grid = PlanarGrid((TWO_PI, TWO_PI), (n, n), kz)
-    floquet = floquet_modes(planar_period_map(grid, flow, eta, 0.02), 3, tolerance=1e-12)
+    grid = KzPlane((TWO_PI, TWO_PI), (n, n), kz)
+    floquet = floquet_modes(kz_plane_period_map(grid, flow, eta, 0.02), 3, tolerance=1e-12)
     with threadpool_limits(limits=1, user_api="blas"):
         dense = rg.leading_eigenvalues(rg.galloway_proctor_velocity_coefficients(0.0, epsilon=0.0), 1.0, kz, eta,
                                        (n - 1) // 3, count=6)
@@ -105,9 +105,9 @@ def test_galloway_proctor_growth_rate_at_moderate_rm_matches_published_curve():
     # the wide tolerance (+-0.05, about a sixth of the value). Rm = 1/eta for this flow's
     # normalisation (U = 1, k = 1; the sqrt(3/2) factor is in the flow, from memory).
     # Runtime about 4 s (48^2 plane, 126 steps per period).
-    grid = PlanarGrid((TWO_PI, TWO_PI), (48, 48), 0.57)
-    period_map = planar_period_map(grid, GallowayProctorFlow(), 1.0 / 50.0, 0.05)
+    grid = KzPlane((TWO_PI, TWO_PI), (48, 48), 0.57)
+    period_map = kz_plane_period_map(grid, GallowayProctorFlow(), 1.0 / 50.0, 0.05)
     solution = floquet_modes(period_map, 1, tolerance=1e-8)
     assert solution.eigenvalues[0].real == pytest.approx(0.30, abs=0.05)
     field = period_map.field_hat(solution.vectors[:, 0])
-    assert planar_cutoff_ratio(field, grid) < 0.03  # resolved: the answer is not a grid artefact
+    assert kz_plane_cutoff_ratio(field, grid) < 0.03  # resolved: the answer is not a grid artefact

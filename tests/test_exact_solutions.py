@@ -34,7 +34,7 @@ from kindyn.calculus import divergence_hat
 from kindyn.case import load_case
 from kindyn.case.schema import RUN
 from kindyn.diagnostics.spectra import energy
-from kindyn.fields import flow_field_hat, random_field_hat
+from kindyn.initial_fields import flow_field_hat, random_field_hat
 from kindyn.layout import BoxLayout
 from kindyn.flows import ABCFlow, GallowayProctorFlow
 from kindyn.array_kernels import numba_available

@@ -58,7 +58,7 @@ LAYERS = (
     (5, "kindyn.transforms", "pyfftw only in transforms/fftw.py; mpi4py, mpi4py_fft only in transforms/distributed*.py"),
     (6, "kindyn.layout", "of kindyn only box, transforms, stepping, array_kernels, errors"),
     (7, "kindyn.induction", "the induction operator"),
-    (7, "kindyn.fields", "initial fields"),
+    (7, "kindyn.initial_fields", "initial fields"),
     (7, "kindyn.timestep", "time step and sampling"),
     (7, "kindyn.diagnostics", "what is measured; never run, eigen, testfield, sweep, output, commands, case"),
     (8, "kindyn.case", "of kindyn only errors, box, flows, and registry constants of stepping, transforms, array_kernels"),

@@ -22,13 +22,13 @@ import math
 import numpy as np
 import pytest
 
-from kindyn.assemble import build_planar_solver, build_solver, build_test_solver
+from kindyn.assemble import build_kz_plane_solver, build_solver, build_test_solver
 from kindyn.box import Box
 from kindyn.flows import FLOW_TYPES, make_flow
 from kindyn.flows.beltrami import ABCFlow
 from kindyn.flows.cellular import GallowayProctorFlow, RobertsFlow
 from kindyn.induction import InductionOperator
-from kindyn.layout import BoxLayout, PlanarGrid, PlanarLayout
+from kindyn.layout import BoxLayout, KzPlane, KzPlaneLayout
 from kindyn.testfield import steady
 from kindyn.testfield.fields import uniform_test_fields
 from kindyn.testfield.problems import TestProblems
@@ -102,7 +102,7 @@ def test_rhs_is_a_pure_function_of_its_arguments_for_every_flow(use, tmp_path, r
 
 def test_planar_rhs_is_a_pure_function_of_its_arguments(rng):
     for flow in (RobertsFlow(), GallowayProctorFlow()):
-        operator = build_planar_solver(PlanarGrid((TWO_PI, TWO_PI), (10, 11), 0.5), flow, 0.2, "rk4", ESTIMATE).operator
+        operator = build_kz_plane_solver(KzPlane((TWO_PI, TWO_PI), (10, 11), 0.5), flow, 0.2, "rk4", ESTIMATE).operator
         y = _random_band(rng, operator)
         first = operator.packed(0.5, y, np.empty_like(y)).copy()
         operator.packed(0.9, _random_band(rng, operator), np.empty_like(y))
@@ -115,8 +115,8 @@ def test_planar_rhs_is_a_pure_function_of_its_arguments(rng):
 def test_planar_operator_equals_the_3d_operator_on_a_box_of_height_two_pi_over_kz(plane, nz, flow, rng):
     kz = 0.6
     box = Box((TWO_PI, 5.0, TWO_PI / kz), (*plane, nz))
-    grid = PlanarGrid(box.lengths[:2], plane, kz)
-    planar = InductionOperator(PlanarLayout(grid, ESTIMATE), flow, 0.1)
+    grid = KzPlane(box.lengths[:2], plane, kz)
+    planar = InductionOperator(KzPlaneLayout(grid, ESTIMATE), flow, 0.1)
     layout = BoxLayout(box, ESTIMATE)
     full = InductionOperator(layout, flow, 0.1)
     b_hat = np.zeros((3, *layout.spectral_shape), complex)

@@ -13,7 +13,7 @@ from dataclasses import dataclass
 import numpy as np
 
 from kindyn.box import Box
-from kindyn.fields import random_field_hat
+from kindyn.initial_fields import random_field_hat
 from kindyn.flows.beltrami import ABCFlow
 from kindyn.run import build_solver
 from kindyn.transforms import TransformSettings

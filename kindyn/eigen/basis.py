@@ -16,7 +16,7 @@ periodic problem) is left out, as are the modes removed by the 2/3 rule.
   (``m_x = 0``, ``m_y > 0``); the other half is filled by Hermitian symmetry. The vector is
   **real**: ``[Re c1, Re c2, Im c1, Im c2]`` over the independent modes, length ``4 n_modes``.
   Every independent mode carries Parseval weight 2, so ``|v|^2 = <|B|^2>/2 = E_M`` exactly.
-* :class:`PlanarBasis` (planar reduction ``B = b(x, y) exp(i k_z z)``): ``b`` is complex with no
+* :class:`KzPlaneBasis` (single-k_z reduction ``B = b(x, y) exp(i k_z z)``): ``b`` is complex with no
   symmetry, the vector is **complex** ``[c1, c2]`` over all kept ``(m_x, m_y)`` (without
   ``q = 0`` when ``k_z = 0``), and ``|v|^2 = <|b|^2>``.
 """
@@ -93,7 +93,7 @@ class SolenoidalBasis:
                 self.field_hat_from_vector(np.ascontiguousarray(v.imag), np.empty(shape, complex)))
 
 
-class PlanarBasis:
+class KzPlaneBasis:
     """Complex vectors <-> complex planar amplitudes ``b_hat(m_x, m_y)`` (see module doc)."""
 
     def __init__(self, layout):

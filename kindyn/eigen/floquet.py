@@ -18,8 +18,8 @@ from __future__ import annotations
 import math
 
 from kindyn.eigen.krylov import EigenSolution, leading_eigenpairs
-from kindyn.eigen.propagator import Propagator, box_propagator, planar_propagator
-from kindyn.layout import PlanarGrid
+from kindyn.eigen.propagator import Propagator, box_propagator, kz_plane_propagator
+from kindyn.layout import KzPlane
 
 
 def steps_per_period(period: float, dt_max: float, multiple: int = 1) -> int:
@@ -36,11 +36,11 @@ def box_period_map(box, flow, eta: float, dt_max: float, transforms=None, scheme
     return box_propagator(box, flow, eta, flow.period / steps, steps, transforms, scheme, start_time=0.0)
 
 
-def planar_period_map(grid: PlanarGrid, flow, eta: float, dt_max: float, scheme: str = "rk4",
+def kz_plane_period_map(grid: KzPlane, flow, eta: float, dt_max: float, scheme: str = "rk4",
                       transforms=None) -> Propagator:
     """The planar period map at ``grid.kz`` (z-independent time-periodic flows)."""
     steps = steps_per_period(flow.period, dt_max)
-    return planar_propagator(grid, flow, eta, flow.period / steps, steps, scheme, start_time=0.0,
+    return kz_plane_propagator(grid, flow, eta, flow.period / steps, steps, scheme, start_time=0.0,
                              transforms=transforms)
 
 

@@ -13,7 +13,7 @@ time ``T = steps * dt`` is ``steps`` integrating-factor Runge–Kutta steps
   are the Floquet multipliers (:mod:`kindyn.eigen.floquet`).
 
 The vectors are those of a basis from :mod:`kindyn.eigen.basis` (real for the 3-D half grid, complex
-for the planar reduction); Euclidean norms of these vectors are energy norms.
+for the single-k_z reduction); Euclidean norms of these vectors are energy norms.
 """
 
 from __future__ import annotations
@@ -23,9 +23,9 @@ from dataclasses import replace
 import numpy as np
 import scipy.sparse.linalg
 
-from kindyn.assemble import build_planar_solver, build_solver
-from kindyn.eigen.basis import PlanarBasis, SolenoidalBasis
-from kindyn.layout import BoxLayout, PlanarGrid
+from kindyn.assemble import build_kz_plane_solver, build_solver
+from kindyn.eigen.basis import KzPlaneBasis, SolenoidalBasis
+from kindyn.layout import BoxLayout, KzPlane
 from kindyn.transforms import TransformSettings
 
 
@@ -88,14 +88,14 @@ def box_propagator(box, flow, eta: float, dt: float, steps: int, transforms=None
                       solver)
 
 
-def planar_propagator(grid: PlanarGrid, flow, eta: float, dt: float, steps: int, scheme: str = "rk4",
+def kz_plane_propagator(grid: KzPlane, flow, eta: float, dt: float, steps: int, scheme: str = "rk4",
                       start_time: float = 0.0, transforms=None) -> Propagator:
-    """The planar propagator at ``grid.kz`` (complex vectors, :class:`~kindyn.eigen.basis.PlanarBasis`).
+    """The planar propagator at ``grid.kz`` (complex vectors, :class:`~kindyn.eigen.basis.KzPlaneBasis`).
 
-    ``transforms`` (a :class:`~kindyn.transforms.TransformSettings`) picks the planar engine, its
+    ``transforms`` (a :class:`~kindyn.transforms.TransformSettings`) picks the plane engine, its
     threads and planning; the precision is always double.
     """
     settings = replace(transforms or TransformSettings(), precision="double")
-    solver = build_planar_solver(grid, flow, eta, scheme, settings)
-    return Propagator(solver.stepper, PlanarBasis(solver.layout), solver.operator.shape, dt, steps, start_time,
+    solver = build_kz_plane_solver(grid, flow, eta, scheme, settings)
+    return Propagator(solver.stepper, KzPlaneBasis(solver.layout), solver.operator.shape, dt, steps, start_time,
                       solver)

@@ -27,9 +27,9 @@ import numpy as np
 from kindyn.eigen.floquet import floquet_modes, steps_per_period
 from kindyn.eigen.krylov import EigenSolution, leading_eigenpairs
 from kindyn.assemble import check_stability, transform_settings
-from kindyn.eigen.planar import is_z_independent, planar_cutoff_ratio, planar_time_step
-from kindyn.layout import PlanarGrid
-from kindyn.eigen.propagator import box_propagator, planar_propagator
+from kindyn.eigen.z_independent import is_z_independent, kz_plane_cutoff_ratio, kz_plane_time_step
+from kindyn.layout import KzPlane
+from kindyn.eigen.propagator import box_propagator, kz_plane_propagator
 from kindyn.errors import CaseError
 
 DEFAULT_PROPAGATION_TURNOVERS = 1.0  # T = 1/(U k_f): principal branch for |omega| < pi U k_f (see krylov)
@@ -199,12 +199,12 @@ def _solve_planar(case, count, kind, progress, with_fields) -> dict:
     lengths = box.lengths[:2]
     _check_plane(case, plane)
     wavenumbers = settings.kz or default_wavenumbers(box)
-    widest = PlanarGrid(lengths, plane, max(wavenumbers))
-    dt, steps = _time_grid(case, kind, planar_time_step(flow, widest, 1.0))
+    widest = KzPlane(lengths, plane, max(wavenumbers))
+    dt, steps = _time_grid(case, kind, kz_plane_time_step(flow, widest, 1.0))
     solutions, candidates, applications = {}, [], 0
     for kz in wavenumbers:
-        grid = PlanarGrid(lengths, plane, kz)
-        propagator = planar_propagator(grid, flow, case.eta, dt, steps, case.run.scheme,
+        grid = KzPlane(lengths, plane, kz)
+        propagator = kz_plane_propagator(grid, flow, case.eta, dt, steps, case.run.scheme,
                                        transforms=transform_settings(case.numerics))
         if progress:
             progress(f"planar {list(plane)}, kz = {kz:.6g}: {propagator.size} unknowns, T = {propagator.time:.4g}")
@@ -223,7 +223,7 @@ def _solve_planar(case, count, kind, progress, with_fields) -> dict:
             break
         b_hat = propagator.field_hat(vector)
         if j == 0:
-            cutoff = planar_cutoff_ratio(b_hat, propagator.solver.layout.plane)
+            cutoff = kz_plane_cutoff_ratio(b_hat, propagator.solver.layout.plane)
         if j < nfields:
             engine = propagator.solver.engine
             engine.spectral[...] = b_hat

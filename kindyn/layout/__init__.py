@@ -22,7 +22,7 @@ Nothing outside a layout indexes global wavenumber arrays or assumes ``k = 0`` s
 
 * :class:`~kindyn.layout.box_layout.BoxLayout`: the 3-D triply periodic box, serial (the whole
   real-to-complex half grid in one process);
-* :class:`~kindyn.layout.planar_layout.PlanarLayout`: the planar reduction of a z-independent flow at
+* :class:`~kindyn.layout.kz_plane.KzPlaneLayout`: the single-k_z reduction of a z-independent flow at
   one vertical wavenumber ``k_z`` (``B = b(x, y) exp(i k_z z)``, complex ``b``), held as a 3-D
   layout with one ``z`` plane so that the same induction operator and array kernels serve it.
 
@@ -33,6 +33,6 @@ modes of their average projected out (:meth:`mean_mode_mask`).
 from __future__ import annotations
 
 from kindyn.layout.box_layout import BoxLayout
-from kindyn.layout.planar_layout import PlanarGrid, PlanarLayout
+from kindyn.layout.kz_plane import KzPlane, KzPlaneLayout
 
-__all__ = ["BoxLayout", "PlanarGrid", "PlanarLayout"]
+__all__ = ["BoxLayout", "KzPlane", "KzPlaneLayout"]

@@ -24,8 +24,8 @@ _FLAGS = {"estimate": "FFTW_ESTIMATE", "measure": "FFTW_MEASURE", "patient": "FF
 class PlanPair:
     """A forward and a backward FFTW plan between two buffers, with the ``1/N`` normalisation.
 
-    Shared by the 3-D real engine here and the planar complex engine
-    (:mod:`kindyn.transforms.planar`). ``destroy_input`` lets the backward plan overwrite
+    Shared by the 3-D real engine here and the complex engine of the single-k_z reduction
+    (:mod:`kindyn.transforms.plane`). ``destroy_input`` lets the backward plan overwrite
     ``spectral`` (required for fast multi-dimensional complex-to-real transforms).
     """
 
@@ -72,13 +72,13 @@ class FFTWEngine:
         self.backward = plans.backward  # real <- inverse FFT(spectral); destroys spectral
 
 
-class FFTWPlanarEngine:
+class FFTWPlaneEngine:
     """Batched complex 2-D transforms over axes ``(1, 2)`` with pyfftw plans built once."""
 
     name = "fftw"
 
     def __init__(self, grid: tuple[int, int], ncomp: int = 3, threads: int = 1, planning: str = "measure"):
-        from kindyn.transforms.planar import checked_plane
+        from kindyn.transforms.plane import checked_plane
 
         nx, ny = checked_plane(grid)
         self.grid, self.ncomp = (nx, ny), ncomp

@@ -1,4 +1,4 @@
-"""The planar reduction of a z-independent flow at one vertical wavenumber (protocol: :mod:`kindyn.layout`).
+"""The single-k_z reduction ("planar" method) of a z-independent flow at one vertical wavenumber (protocol: :mod:`kindyn.layout`).
 
 When ``u = u(x, y, t)`` each vertical wavenumber evolves on its own:
 ``B(x, y, z, t) = b(x, y, t) exp(i k_z z)`` (real field ``Re B``), with complex ``b`` on the
@@ -25,11 +25,11 @@ from kindyn.box import fft_mode_numbers, kept_by_two_thirds, kept_index_ranges, 
 from kindyn.errors import FlowError
 from kindyn.layout.spectral import band_support, packed_entries, velocity_components
 from kindyn.transforms import TransformSettings
-from kindyn.transforms.planar import make_planar_engine
+from kindyn.transforms.plane import make_plane_engine
 
 
 @dataclass(frozen=True)
-class PlanarGrid:
+class KzPlane:
     """Periodic ``Lx x Ly`` plane sampled on ``nx x ny`` points, for one vertical wavenumber ``kz``."""
 
     lengths: tuple[float, float]
@@ -68,14 +68,14 @@ class _PlaneEngine:
         self.forward, self.backward = engine.forward, engine.backward
 
 
-class PlanarLayout:
-    """The plane of :class:`PlanarGrid` ``grid`` in this process (serial; reductions are the identity)."""
+class KzPlaneLayout:
+    """The plane of :class:`KzPlane` ``grid`` in this process (serial; reductions are the identity)."""
 
     processes = 1
     real_dtype = np.dtype(np.float64)
     complex_dtype = np.dtype(np.complex128)
 
-    def __init__(self, grid: PlanarGrid, transforms: TransformSettings = TransformSettings()):
+    def __init__(self, grid: KzPlane, transforms: TransformSettings = TransformSettings()):
         self.plane, self.transforms = grid, transforms
         self._engines = {}
 
@@ -153,7 +153,7 @@ class PlanarLayout:
         key = (components, purpose)
         if key not in self._engines:
             t = self.transforms
-            self._engines[key] = _PlaneEngine(make_planar_engine(self.grid, components, t.engine, t.threads, t.planning))
+            self._engines[key] = _PlaneEngine(make_plane_engine(self.grid, components, t.engine, t.threads, t.planning))
         return self._engines[key]
 
     def physical_from_modes(self, modes, coefficients) -> np.ndarray:

@@ -1,11 +1,11 @@
-"""Helpers of the planar reduction for flows that do not depend on z.
+"""Helpers of the single-k_z reduction ("planar" method) for flows that do not depend on z.
 
 When ``u = u(x, y, t)`` each vertical wavenumber evolves on its own, ``B = b(x, y, t) exp(i k_z z)``;
-the problem at one ``k_z`` is the induction operator on a :class:`~kindyn.layout.PlanarLayout`
-(built by :func:`kindyn.assemble.build_planar_solver`). A 3-D box of height ``Lz = 2 pi / k_z``
-holds exactly the wavenumbers ``m k_z``; its spectrum is the union of the planar spectra at
+the problem at one ``k_z`` is the induction operator on a :class:`~kindyn.layout.KzPlaneLayout`
+(built by :func:`kindyn.assemble.build_kz_plane_solver`). A 3-D box of height ``Lz = 2 pi / k_z``
+holds exactly the wavenumbers ``m k_z``; its spectrum is the union of the single-k_z spectra at
 ``k_z = m 2 pi / Lz`` (and their conjugates for ``m < 0``). This module decides whether a flow is
-z-independent, chooses the planar time step and measures the planar resolution.
+z-independent, chooses the time step of the reduction and measures its resolution.
 """
 
 from __future__ import annotations
@@ -15,7 +15,7 @@ import math
 import numpy as np
 
 from kindyn.errors import FlowError
-from kindyn.layout import PlanarGrid, PlanarLayout
+from kindyn.layout import KzPlane, KzPlaneLayout
 from kindyn.timestep import max_speeds
 
 
@@ -48,14 +48,14 @@ def is_z_independent(flow, box, times=None, rtol: float = 1e-12) -> bool:
     return bool(independent)
 
 
-def planar_time_step(flow, grid: PlanarGrid, cfl: float) -> float:
+def kz_plane_time_step(flow, grid: KzPlane, cfl: float) -> float:
     """Advective CFL step ``cfl / sum_i max|u_i| k_max,i`` with ``k_max,z = |k_z|`` (see :mod:`kindyn.timestep`)."""
-    speeds = max_speeds(flow, PlanarLayout(grid), getattr(flow, "period", None))
+    speeds = max_speeds(flow, KzPlaneLayout(grid), getattr(flow, "period", None))
     rate = float(np.dot(speeds, grid.max_kept_wavenumbers))
     return cfl / rate if rate > 0 else math.inf
 
 
-def planar_cutoff_ratio(b_hat: np.ndarray, grid: PlanarGrid) -> float:
+def kz_plane_cutoff_ratio(b_hat: np.ndarray, grid: KzPlane) -> float:
     """Energy in the last fully kept horizontal shell over the largest shell energy.
 
     Shells in ``|k_h| = sqrt(k_x^2 + k_y^2)`` of width ``2 pi / max(Lx, Ly)``; ``b_hat`` holds planar
@@ -64,7 +64,7 @@ def planar_cutoff_ratio(b_hat: np.ndarray, grid: PlanarGrid) -> float:
     is not small means structure the grid cannot hold, and under-resolved solves can show spurious
     growth.
     """
-    layout = PlanarLayout(grid)
+    layout = KzPlaneLayout(grid)
     b_hat = np.asarray(b_hat).reshape(-1, *layout.spectral_shape)
     kx, ky, _ = layout.wavenumbers
     dk = 2 * np.pi / max(grid.lengths)

@@ -1,4 +1,4 @@
-"""Complex two-dimensional transform engines for the planar (z-independent) reduction.
+"""Complex two-dimensional transform engines for the single-k_z reduction of z-independent flows.
 
 A field ``B(x, y, z) = b(x, y) exp(i k_z z)`` is held by its complex planar amplitude ``b``. An
 engine owns two complex buffers and moves data between them, like the 3-D engines of
@@ -14,7 +14,7 @@ engine owns two complex buffers and moves data between them, like the 3-D engine
 sum and leaves ``spectral`` intact (out-of-place complex transforms).
 
 Engines: ``"fftw"`` (pyfftw plans, made before the buffers are filled) and ``"scipy"``
-(``scipy.fft``); :func:`make_planar_engine` falls back to scipy when pyfftw is missing.
+(``scipy.fft``); :func:`make_plane_engine` falls back to scipy when pyfftw is missing.
 """
 
 from __future__ import annotations
@@ -22,7 +22,7 @@ from __future__ import annotations
 import numpy as np
 import scipy.fft
 
-class ScipyPlanarEngine:
+class ScipyPlaneEngine:
     """Batched complex 2-D transforms over axes ``(1, 2)`` with ``scipy.fft``."""
 
     name = "scipy"
@@ -41,18 +41,18 @@ class ScipyPlanarEngine:
         self.physical[...] = scipy.fft.ifft2(self.spectral, axes=(1, 2), norm="forward", workers=self.workers)
 
 
-def make_planar_engine(grid, ncomp: int = 3, engine: str = "fftw", threads: int = 1, planning: str = "measure"):
+def make_plane_engine(grid, ncomp: int = 3, engine: str = "fftw", threads: int = 1, planning: str = "measure"):
     """The planar engine named ``engine`` (``"fftw"`` falls back to ``"scipy"`` without pyfftw)."""
     if engine == "fftw":
         try:
-            from kindyn.transforms.fftw import FFTWPlanarEngine
+            from kindyn.transforms.fftw import FFTWPlaneEngine
         except ImportError:
             pass
         else:
-            return FFTWPlanarEngine(grid, ncomp, threads, planning)
+            return FFTWPlaneEngine(grid, ncomp, threads, planning)
     elif engine != "scipy":
         raise ValueError(f"unknown planar transform engine {engine!r}; expected 'fftw' or 'scipy'")
-    return ScipyPlanarEngine(grid, ncomp, threads)
+    return ScipyPlaneEngine(grid, ncomp, threads)
 
 
 def checked_plane(grid) -> tuple[int, int]:
