@@ -49,6 +49,21 @@ def transform_settings(numerics, precision: str | None = None) -> TransformSetti
                              numerics.array_kernels)
 
 
+def make_box_layout(box: Box, transforms: TransformSettings = TransformSettings(), numerics=None):
+    """The 3-D layout for this process: serial, or distributed over the MPI processes this run was
+    launched on (``mpiexec -n P``, ``srun``; :func:`kindyn.transforms.launch.launched_processes`).
+    ``numerics`` (the ``[numerics]`` slice) may choose the decomposition and process grid."""
+    from kindyn.transforms.launch import launched_processes
+
+    if launched_processes() <= 1:
+        return BoxLayout(box, transforms)
+    from kindyn.layout.distributed_box import DistributedBoxLayout
+
+    decomposition = getattr(numerics, "decomposition", "auto") if numerics is not None else "auto"
+    grid = getattr(numerics, "process_grid", None) if numerics is not None else None
+    return DistributedBoxLayout(box, transforms, decomposition=decomposition, requested_grid=grid)
+
+
 def renewal_interval(flow) -> float | None:
     """The interval between the breaks of a flow that is constant in time between them (renovating
     flows: ``renewal_time``), handed to the stepper; ``None`` for every other flow."""

@@ -18,7 +18,7 @@ from kindyn.calculus import curl_hat
 def random_field_hat(layout, seed: int, peak_wavenumber: float) -> np.ndarray:
     """Unit-energy random initial field (see module docstring); complex spectral array ``(3, *spectral_shape)``."""
     rng = np.random.default_rng(seed)
-    potential_hat = layout.spectral_from_physical(rng.standard_normal((3, *layout.physical_shape)))
+    potential_hat = layout.spectral_from_physical(layout.standard_normal(rng, 3))
     k = np.sqrt(layout.k_squared)
     profile = np.exp(-((k / peak_wavenumber) ** 2)) * layout.dealias_mask
     profile[profile < 1e-30] = 0.0  # no subnormal numbers: they slow every transform that touches them
@@ -36,13 +36,17 @@ def flow_field_hat(layout, flow, t: float = 0.0) -> np.ndarray:
 
 
 def probe_indices(layout, count: int = 96, seed: int = 20261201) -> np.ndarray:
-    """Flat indices (into one component of the local spectral array) of the probe modes.
+    """Flat indices (into one component of the whole half grid) of the probe modes.
 
     The lowest kept modes (``|m_i| <= 2``) plus a seeded random choice of other kept modes, so that
-    every mode structure projects on the probes.
+    every mode structure projects on the probes. Chosen on the whole grid, so that every layout of
+    the same box picks the same probes (:meth:`kindyn.layout.BoxLayout.probe_vector` reads them).
     """
-    mx, my, mz = layout.mode_numbers
-    kept = np.broadcast_to(layout.dealias_mask, layout.spectral_shape)
+    from kindyn.layout import BoxLayout
+
+    whole = BoxLayout(layout.box)
+    mx, my, mz = whole.mode_numbers
+    kept = np.broadcast_to(whole.dealias_mask, whole.spectral_shape)
     low = kept & (np.abs(mx) <= 2) & (np.abs(my) <= 2) & (mz <= 2)
     flat_low = np.flatnonzero(low)
     others = np.setdiff1d(np.flatnonzero(kept), flat_low)
@@ -51,7 +55,6 @@ def probe_indices(layout, count: int = 96, seed: int = 20261201) -> np.ndarray:
     return np.sort(np.concatenate([flat_low, extra]))
 
 
-def probe_vector(b_hat: np.ndarray, indices: np.ndarray) -> np.ndarray:
+def probe_vector(b_hat: np.ndarray, indices: np.ndarray, layout) -> np.ndarray:
     """Real probe vector: real and imaginary parts of the probe coefficients of all components."""
-    picked = b_hat.reshape(b_hat.shape[0], -1)[:, indices]
-    return np.concatenate([picked.real.ravel(), picked.imag.ravel()]).astype(float)
+    return layout.probe_vector(b_hat, indices)

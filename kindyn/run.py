@@ -19,13 +19,12 @@ from dataclasses import dataclass, field
 import numpy as np
 from threadpoolctl import threadpool_limits
 
-from kindyn.assemble import build_solver, check_stability, transform_settings
+from kindyn.assemble import build_solver, check_stability, make_box_layout, transform_settings
 from kindyn.diagnostics.growth import GrowthEstimate, estimate_growth
 from kindyn.diagnostics.measures import MAGNETIC_ENERGY, run_series
 from kindyn.diagnostics.spectra import shell_spectrum
 from kindyn.errors import CaseError, NumericalError
 from kindyn.initial_fields import flow_field_hat, probe_indices, probe_vector, random_field_hat
-from kindyn.layout import BoxLayout
 from kindyn.timestep import Timing, choose_timing
 
 RUNAWAY_LOG_ENERGY_JUMP = 200.0
@@ -57,8 +56,8 @@ class Record:
 class RunOutcome:
     estimate: GrowthEstimate
     record: Record
-    field_hat: np.ndarray
-    field: np.ndarray  # the final field on the grid, (3, nx, ny, nz), unit energy
+    field_hat: np.ndarray  # the final field's coefficients held by this process (all of them when serial)
+    field: np.ndarray | None  # the whole final field on the grid, (3, nx, ny, nz), unit energy; None off the first process
     spectrum: tuple[np.ndarray, np.ndarray]
     cutoff_ratio: float
     resolution_warning: bool
@@ -98,7 +97,7 @@ def run_growth(case, progress=None, checkpoint=None) -> RunOutcome:
     ``load(case) -> dict | None`` and ``save(case, state)`` and makes a killed run resumable.
     """
     flow, settings = case.flow, case.run
-    layout = BoxLayout(case.box, transform_settings(case.numerics))
+    layout = make_box_layout(case.box, transform_settings(case.numerics), case.numerics)
     timing = choose_timing(flow, layout, settings.cfl, settings.time_step, settings.sample_interval)
     key, value = ("run.time_step", settings.time_step) if settings.time_step else ("run.cfl", settings.cfl)
     check_stability(settings.scheme, timing.courant, case.path, key, value, timing.courant / timing.dt)
@@ -110,15 +109,17 @@ def run_growth(case, progress=None, checkpoint=None) -> RunOutcome:
     measures = run_series(flow.z_independent)
     record, t, step, log_amp = Record(), 0.0, 0, 0.0
     state = checkpoint.load(case) if checkpoint else None
-    if state:
-        b_hat = state["field_hat"].astype(layout.complex_dtype)
+    if state:  # the checkpoint holds the whole field: this process takes its block (any number of processes)
+        b_hat = layout.local_part(state["field_hat"]).astype(layout.complex_dtype)
         t, step, log_amp, record = state["time"], state["step"], state["log_amplitude"], Record(**state["record"])
     else:
         b_hat = initial_field(case, layout)
     started, last_save, last_report = wallclock.time(), wallclock.time(), 0.0
     estimate = GrowthEstimate(math.nan, math.inf, math.nan, False, math.nan, (0.0, 0.0), 0, "not started")
     stop_reason = ""
-    samples_since_estimate = 0
+    # samples since the last estimate, from the record itself: a resumed run keeps the schedule
+    last = record.estimate_times[-1] if record.estimate_times else -math.inf
+    samples_since_estimate = sum(1 for s in record.times[1:] if s > last)
     if not record.times:
         _sample(record, b_hat, layout, t, log_amp, indices, measures)
     while True:
@@ -136,7 +137,7 @@ def run_growth(case, progress=None, checkpoint=None) -> RunOutcome:
         due = max(CHECKS_PER_ESTIMATE, len(record.times) // ESTIMATES_PER_RECORD)
         if samples_since_estimate >= due * timing.samples_per_strobe:
             samples_since_estimate = 0
-            estimate = _estimate(record, timing, tolerance, flow)
+            estimate = layout.from_root(_estimate(record, timing, tolerance, flow))
             record.estimate_times.append(t)
             record.estimate_rates.append(estimate.growth_rate)
             record.estimate_errors.append(estimate.error)
@@ -150,17 +151,20 @@ def run_growth(case, progress=None, checkpoint=None) -> RunOutcome:
             stop_reason = f"reached max_steps = {settings.max_steps} before converging"
             break
         now = wallclock.time()
-        if progress and now - last_report > 2.0:
+        if progress and layout.is_root and now - last_report > 2.0:
             progress(t, estimate, tolerance)
             last_report = now
-        if checkpoint and now - last_save > settings.checkpoint_seconds:
-            checkpoint.save(case, {"field_hat": b_hat, "time": t, "step": step,
-                                   "log_amplitude": log_amp, "record": record})
+        # the first process's clock decides, so that every process joins the gather of the field
+        if checkpoint and layout.from_root(now - last_save > settings.checkpoint_seconds):
+            whole = layout.gather_spectral(b_hat)
+            if layout.is_root:
+                checkpoint.save(case, {"field_hat": whole, "time": t, "step": step,
+                                       "log_amplitude": log_amp, "record": record})
             last_save = now
     if record.estimate_times and record.estimate_times[-1] != t:
-        estimate = _estimate(record, timing, tolerance, flow)
+        estimate = layout.from_root(_estimate(record, timing, tolerance, flow))
     ratio = settled_cutoff_ratio(record)
-    field = layout.physical_from_spectral(b_hat)
+    field = layout.gather_physical(layout.physical_from_spectral(b_hat))  # the whole field on the first process
     return RunOutcome(estimate, record, b_hat, field, shell_spectrum(b_hat, layout), ratio,
                       ratio > settings.resolution_threshold, step, t, timing, stop_reason,
                       wallclock.time() - started, bool(state),
@@ -211,7 +215,7 @@ def _sample(record: Record, b_hat, layout, t, log_amp, indices, measures, step=0
     record.log_energy.append(log_energy)
     record.log_amplitude.append(log_amp)
     # probes of the field before renormalisation: the true field is b_hat * exp(log_amp)
-    record.probes.append(probe_vector(b_hat, indices))
+    record.probes.append(probe_vector(b_hat, indices, layout))
     scale = 1.0 / math.sqrt(e)
     b_hat *= scale
     for measure in measures:  # intensive quantities: the same for the renormalised field

@@ -34,6 +34,7 @@ class BoxLayout:
     """
 
     processes = 1
+    is_root = True  # the process that reads and writes files and prints
 
     def __init__(self, box: Box, transforms: TransformSettings = TransformSettings()):
         self.box, self.transforms = box, transforms
@@ -207,6 +208,32 @@ class BoxLayout:
         for i, c in enumerate(velocity_components(self, flow, t, np.float64)):
             out[i] = c
         return out
+
+    # --- whole-grid arrays (a distributed layout gathers and cuts them) ---------------------------
+    def local_part(self, global_hat: np.ndarray) -> np.ndarray:
+        """This process's block of a whole half-grid array (here: all of it)."""
+        return global_hat
+
+    def gather_spectral(self, local_hat: np.ndarray):
+        """The whole half-grid array on the first process (here: the array itself)."""
+        return local_hat
+
+    def gather_physical(self, local: np.ndarray):
+        """The whole physical array on the first process (here: the array itself)."""
+        return local
+
+    def standard_normal(self, rng, components: int) -> np.ndarray:
+        """The local block of ``rng.standard_normal((components, nx, ny, nz))`` (here: all of it)."""
+        return rng.standard_normal((components, *self.physical_shape))
+
+    def probe_vector(self, b_hat: np.ndarray, indices: np.ndarray) -> np.ndarray:
+        """Real and imaginary parts of the coefficients at whole-grid flat ``indices`` of every component."""
+        picked = b_hat.reshape(b_hat.shape[0], -1)[:, indices]
+        return np.concatenate([picked.real.ravel(), picked.imag.ravel()]).astype(float)
+
+    def from_root(self, value):
+        """The first process's ``value`` on every process (here: the value itself)."""
+        return value
 
     # --- reductions ---------------------------------------------------------------------------
     def total(self, value):

@@ -26,7 +26,7 @@ from kindyn.testfield.extraction import (alpha_from_uniform, beta_from_eta, coef
 from kindyn.testfield.fields import uniform_test_fields
 from kindyn.testfield.kernels import fit_lorentzian
 from kindyn.array_kernels import make_kernels
-from kindyn.assemble import transform_settings
+from kindyn.assemble import make_box_layout, transform_settings
 from kindyn.layout import BoxLayout
 from kindyn.testfield.problems import TestProblems
 from kindyn.testfield.settings import plan_from_case
@@ -81,14 +81,24 @@ class TestFieldResult:
                                                                      self.errors["eta_K" + sfx])]
         return np.array([p[0] for p in pairs]), np.array([p[1] for p in pairs])
 
+    def uniform_alpha(self, soca: bool = False) -> float | None:
+        """``(alpha_pp + alpha_qq)/2`` of the uniform-field alpha (the K = 0 value of :meth:`horizontal`),
+        or None when the uniform test fields were not computed (or gave no finite value)."""
+        alpha = self.tensors.get("alpha_soca" if soca else "alpha")
+        if alpha is None:
+            return None
+        perp = [j for j in range(3) if j != self.axis]
+        value = 0.5 * float(alpha[perp[0], perp[0]] + alpha[perp[1], perp[1]])
+        return value if math.isfinite(value) else None
+
     def beta(self, soca: bool = False) -> np.ndarray:
         sfx = "_soca" if soca else ""
         return np.stack([beta_from_eta(e, self.axis) for e in self.tensors["eta_K" + sfx]])
 
 
 def _layout(case) -> BoxLayout:
-    """The box layout of the test problems: always double precision."""
-    return BoxLayout(case.box, transform_settings(case.numerics, precision="double"))
+    """The box layout of the test problems (serial or distributed, as launched): always double precision."""
+    return make_box_layout(case.box, transform_settings(case.numerics, precision="double"), case.numerics)
 
 
 def _planar_coefficients(groups_of_fields, s):
@@ -207,7 +217,8 @@ def calibrate(case, progress=None, direct_run=None) -> TestFieldResult:
     for soca in (False, True):
         a, e = result.horizontal(soca)
         sfx = "_soca" if soca else ""
-        result.fits["alpha" + sfx] = fit_lorentzian(result.K, a, flow.wavenumber).as_dict()
+        result.fits["alpha" + sfx] = fit_lorentzian(result.K, a, flow.wavenumber, result.uniform_alpha(soca),
+                                                    "in-plane mean of the uniform-field alpha").as_dict()
         result.fits["eta_t" + sfx] = fit_lorentzian(result.K, e, flow.wavenumber).as_dict()
     if plan.closure and direct_run is None:
         result.notes.append("closure check skipped: no direct run was supplied")
@@ -230,6 +241,6 @@ def _closure(case, plan, result, direct_run) -> dict:
     except NumericalError as exc:
         rate, error, b_hat = math.nan, math.nan, None
         result.notes.append(f"closure check: the direct run failed ({exc})")
-    share = box_scale_mean_share(b_hat, BoxLayout(case.box), plan.axis) if b_hat is not None else None
+    share = box_scale_mean_share(b_hat, _layout(case), plan.axis) if b_hat is not None else None
     return closure_report(float(a[i]), float(e[i]), result.tensors["alpha_K"][i], result.tensors["eta_K"][i],
                           case.eta, K1, plan.axis, case.flow.wavenumber, rate, error, share)

@@ -15,6 +15,7 @@ from dataclasses import dataclass
 
 from kindyn.case.testfield_section import AXES, TESTFIELD_KEYS, TestfieldConfig
 from kindyn.errors import CaseError
+from kindyn.transforms.launch import launched_processes
 
 __all__ = ["AXES", "TESTFIELD_KEYS", "TestFieldPlan", "TestfieldConfig", "plan_from_case"]
 
@@ -87,8 +88,13 @@ def plan_from_case(case) -> TestFieldPlan:
     modes = sorted(modes)
     steady = bool(flow.steady)
     method = s.method
+    processes = launched_processes()
     if method == "auto":
-        method = "direct" if steady else "time"
+        method = "direct" if steady and processes == 1 else "time"
+    if method == "direct" and processes > 1:
+        raise CaseError(file, "testfield.method", s.method,
+                        f"\"time\" or \"auto\" on {processes} MPI processes: the direct steady solves run in one "
+                        "process (run them without mpiexec, or step the test problems in time)")
     if method == "direct" and not steady:
         raise CaseError(file, "testfield.method", s.method,
                         f"\"time\" or \"auto\": the {case.flow_type} flow is time-dependent, so there is no steady problem")
