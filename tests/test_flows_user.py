@@ -85,7 +85,8 @@ def test_projection_keeps_the_solenoidal_part(module_dir):
     # Helmholtz: (sin x + cos y, 0, 0) = grad(-cos x) + (cos y, 0, 0); the Leray projection keeps
     # the second part exactly (by hand).
     box = Box(grid=(8, 8, 8))
-    f = make_flow("callable", {"function": "my_flows.py:gradient", "divergence": "project"}, box, module_dir)
+    f = make_flow("callable", {"function": "my_flows.py:gradient", "divergence": "project", "steady": True}, box,
+                  module_dir)
     x, y, z = box.coordinates
     expected = np.stack(np.broadcast_arrays(np.cos(y) + 0 * x + 0 * z, 0 * x * y * z, 0 * x * y * z))
     np.testing.assert_allclose(sample_velocity(f, box, 0.4), expected, rtol=0, atol=1e-14)
@@ -97,7 +98,7 @@ def test_callable_failing_at_run_time_is_a_flow_error(module_dir):
     box = Box(grid=(8, 8, 8))
     with pytest.raises(ParameterError):
         make_flow("callable", {"function": "my_flows.py:broken"}, box, module_dir)
-    f = make_flow("callable", {"function": "my_flows.py:abc"}, box, module_dir)
+    f = make_flow("callable", {"function": "my_flows.py:abc", "period": "none"}, box, module_dir)
     f.sampler.raw = lambda *a: 1 / 0
     with pytest.raises(FlowError, match="ZeroDivisionError"):
         f.velocity(*box.coordinates, 1.0)

@@ -9,6 +9,7 @@ from __future__ import annotations
 
 from kindyn.commands.common import add_case_arguments, case_from_args, clean_number, output_folder, print_json, say
 from kindyn.diagnostics.flow_stats import flow_statistics, time_dependence
+from kindyn.flows.scales import scale_rule
 from kindyn.assemble import transform_settings
 from kindyn.layout import BoxLayout
 
@@ -20,6 +21,11 @@ TIME_CAUTION = ("the steady-flow SOCA values do not apply to this {kind} flow (a
                 "are null); its correlation time is {tau}")
 BAND_CAUTION = ("{fraction:.3g} of <|u|^2> lies beyond the 2/3-rule band of this grid: the run would be "
                 "under-resolved (and under-resolved runs can show spurious growth)")
+
+MEASURED_CAUTION = ("{keys} measured from the flow (not declared): Rm = U/(eta k_f) follows kindyn's default "
+                    "(see scale_rule); declare flow.U and flow.k_f to fix what Rm means")
+MEAN_CAUTION = ("the flow has a uniform part |<u>| = {mean:.3g} (allowed by flow.mean_flow): it advects B, makes "
+                "no dynamo and sweeps the rest of the flow past the field")
 
 
 def add_arguments(parser) -> None:
@@ -40,6 +46,10 @@ def flow_summary(case, stats) -> dict:
         cautions.append(TIME_CAUTION.format(kind=kind, tau=known if tau_c is None else f"{tau_c:g}"))
     if stats.band_fraction > 1e-6:
         cautions.append(BAND_CAUTION.format(fraction=stats.band_fraction))
+    if getattr(flow, "measured_scales", ()):
+        cautions.append(MEASURED_CAUTION.format(keys=" and ".join(flow.measured_scales)))
+    if stats.mean_flow > 1e-6 * stats.u_rms:
+        cautions.append(MEAN_CAUTION.format(mean=stats.mean_flow))
     k_f = flow.wavenumber
     return {
         "flow_type": case.flow_type,
@@ -56,6 +66,7 @@ def flow_summary(case, stats) -> dict:
         "band_fraction": stats.band_fraction,
         "U": flow.speed,
         "k_f": k_f,
+        "scale_rule": scale_rule(flow),
         "Rm": case.Rm,
         "Rm_rms": stats.u_rms / (case.eta * k_f),
         "eta": case.eta,
@@ -106,7 +117,8 @@ def _print_human(s: dict) -> None:
     say(f"{s['flow_type']} flow ({s['time_dependence']}; numbers of the snapshot at t = 0)")
     say(f"  u_rms = {num(s['u_rms'])}   max|u| = {num(s['max_speed'])}   |<u>| = {num(s['mean_flow'])}")
     say(f"  U = {num(s['U'])}   k_f = {num(s['k_f'])}   eta = {num(s['eta'])}   Rm = U/(eta k_f) = {num(s['Rm'])}"
-        f"   Rm_rms = {num(s['Rm_rms'])}")
+        f"   Rm_rms = u_rms/(eta k_f) = {num(s['Rm_rms'])}")
+    say(f"  U and k_f: {s['scale_rule']}")
     say(f"  <u.omega> = {num(s['helicity'])}   relative helicity = {num(s['relative_helicity'])}")
     say(f"  ||div u||/||grad u|| = {num(s['divergence'])}   energy beyond the dealiased band: {num(s['band_fraction'])}")
     say(f"  SOCA: alpha = {num(s['alpha_soca'])}   eta_t = {num(s['eta_t_soca'])}")

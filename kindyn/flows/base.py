@@ -5,7 +5,10 @@ A flow is a frozen dataclass of its parameters with
 * ``velocity(x, y, z, t) -> (ux, uy, uz)``: physical-space velocity at broadcastable coordinate
   arrays (``x (nx,1,1)``, ``y (1,ny,1)``, ``z (1,1,nz)``) and time ``t``; components may have any
   shape that broadcasts to the grid (a z-independent flow returns ``(nx, ny, 1)`` arrays);
-* ``speed`` (U) and ``wavenumber`` (k_f): the characteristic scales in ``Rm = U/(eta k_f)``;
+* ``speed`` (U) and ``wavenumber`` (k_f): the characteristic scales in ``Rm = U/(eta k_f)``, and
+  ``scale_rule``: a short text saying how they were obtained (the Rm rule, :mod:`kindyn.flows.scales`;
+  built-in classes state their declaration, user flows say "declared in the case", "... in the
+  velocity file" or "measured"; read it with :func:`kindyn.flows.scales.scale_rule`);
 * ``period``: the period of a time-periodic flow, ``None`` otherwise;
 * ``steady``: True when ``u`` does not depend on ``t``;
 * ``z_independent``: True when ``u`` does not depend on ``z``;

@@ -55,6 +55,7 @@ class ABCFlow:
 
     period = None
     steady = True
+    scale_rule = "declared by the abc flow type: U = sqrt((A^2+B^2+C^2)/3), k_f = k"
 
     @property
     def z_independent(self) -> bool:
@@ -107,6 +108,8 @@ class BeltramiSumFlow:
 
     period = None
     steady = True
+    scale_rule = ("declared by the beltrami-sum flow type: U = sqrt(<|u|^2>/3), k_f = energy-weighted mean "
+                  "of its wavenumbers")
 
     @property
     def z_independent(self) -> bool:

@@ -73,6 +73,7 @@ class RobertsFlow:
     period = None
     steady = True
     z_independent = True
+    scale_rule = "declared by the roberts flow type: U = U, k_f = k (sum form) or sqrt(2) k (product form)"
 
     def velocity(self, x, y, z, t):
         U, k = self.U, self.k
@@ -118,6 +119,7 @@ class GallowayProctorFlow:
 
     steady = False
     z_independent = True
+    scale_rule = "declared by the galloway-proctor flow type: U = U (<|u|^2> = 3 U^2), k_f = k"
 
     def phases(self, t: float) -> tuple[float, float]:
         """Phase shifts ``(a, b)`` of the x and y cells: ``cos(kx + a)``, ``sin(ky + b)``."""
@@ -160,6 +162,7 @@ class TaylorGreenFlow:
     period = None
     steady = True
     z_independent = False
+    scale_rule = "declared by the taylor-green flow type: U = U (<|u|^2> = U^2/4), k_f = sqrt(3) k"
 
     def velocity(self, x, y, z, t):
         U, k = self.U, self.k

@@ -11,7 +11,13 @@ Measures (volume averages, Fourier coefficients on the box's half grid, ``u = su
   with the field alias onto kept modes, so the flow must fit the band as the built-in flows do;
 * periodicity (formula and callable flows only, which can be evaluated anywhere): ``u`` on the
   faces ``x_i = L_i`` against ``x_i = 0`` (and both shifted by 0.37 grid cells inward), relative to
-  ``max |u|`` on the grid.
+  ``max |u|`` on the grid and the faces;
+* real values: complex components are refused, never cast;
+* the uniform part: ``|<u>|^2/<|u|^2>`` above :data:`MEAN_FLOW_TOLERANCE` needs ``mean_flow = "allow"``;
+* time: a declared period must hold, ``max|u(t0 + P) - u(t0)| <= PERIOD_TOLERANCE max|u|`` at
+  ``t0 = 0.37 P``; a time-dependent formula or callable must declare ``period = P`` or ``"none"``.
+
+Aliasing (the grid's samples are another flow) is checked in :mod:`kindyn.flows.aliasing`.
 """
 
 from __future__ import annotations
@@ -19,7 +25,8 @@ from __future__ import annotations
 import numpy as np
 
 from kindyn.calculus import solenoidal_part_hat
-from kindyn.errors import ParameterError
+from kindyn.errors import MISSING, ParameterError
+from kindyn.flows.aliasing import highest_mode
 from kindyn.flows.gridded import band_mask, hat_from_grid
 
 DIVERGENCE_TOLERANCE = 1e-6
@@ -62,7 +69,12 @@ def grid_values(components, box, key: str, value, t: float) -> np.ndarray:
     out = np.empty((3, *box.shape))
     for i, (axis, part) in enumerate(zip("xyz", parts)):
         try:
-            array = np.asarray(part, dtype=float)
+            array = np.asarray(part)
+            if np.iscomplexobj(array):
+                imag = float(np.max(np.abs(array.imag))) if array.size else 0.0
+                raise ParameterError(key, value, f"real numbers for u_{axis}; got complex values (max |Im u_{axis}| "
+                                     f"= {imag:.3g} at t = {t:g}); return the real part yourself if that is the flow")
+            array = np.asarray(array, dtype=float)
         except (TypeError, ValueError):
             raise ParameterError(key, value, f"real numbers for u_{axis}; got {type(part).__name__}") from None
         try:
@@ -84,8 +96,10 @@ def check_finite(u: np.ndarray, box, key: str, value, t: float) -> None:
 
 
 def check_periodic(velocity, box, key: str, value, t: float, scale: float) -> None:
-    """Compare ``u`` on the far faces with the near faces of the box (see module docstring)."""
+    """Compare ``u`` on the far faces with the near faces of the box (see module docstring); the
+    scale is the largest ``|u|`` on the grid or on the faces (a grid may miss an aliased flow)."""
     coords = box.coordinates
+    pairs = []
     for axis, name in enumerate("xyz"):
         L, h = box.lengths[axis], box.spacing[axis]
         for offset in (0.0, 0.37 * h):
@@ -95,12 +109,14 @@ def check_periodic(velocity, box, key: str, value, t: float, scale: float) -> No
             far[axis] = np.full(shape, L + offset)
             a = grid_values(velocity(*near, t), _face(box, axis), key, value, t)
             b = grid_values(velocity(*far, t), _face(box, axis), key, value, t)
-            gap = float(np.max(np.abs(a - b)))
-            if not gap <= PERIODICITY_TOLERANCE * max(scale, 1e-300):
-                raise ParameterError(key, value, f"a flow periodic in the box: along {name}, u at {name} = "
-                                     f"L{name} + {offset:.3g} differs from u at {name} = {offset:.3g} by up to "
-                                     f"{gap:.3g} ({gap / scale if scale else float('inf'):.3g} of max|u|; "
-                                     f"tolerance {PERIODICITY_TOLERANCE:g}) at t = {t:g}")
+            scale = max(scale, float(np.max(np.abs(a))))
+            pairs.append((name, offset, float(np.max(np.abs(a - b)))))
+    for name, offset, gap in pairs:
+        if not gap <= PERIODICITY_TOLERANCE * max(scale, 1e-300):
+            raise ParameterError(key, value, f"a flow periodic in the box: along {name}, u at {name} = "
+                                 f"L{name} + {offset:.3g} differs from u at {name} = {offset:.3g} by up to "
+                                 f"{gap:.3g} ({gap / scale if scale else float('inf'):.3g} of max|u|; "
+                                 f"tolerance {PERIODICITY_TOLERANCE:g}) at t = {t:g}")
 
 
 class _Face:
@@ -119,12 +135,17 @@ def _face(box, axis):
 def check_band(u_hat: np.ndarray, box, key: str, value, t: float, fraction: float | None = None) -> None:
     """Raise when more than :data:`BAND_TOLERANCE` of ``<|u|^2>`` lies outside the kept band
     (``fraction`` overrides the share measured from ``u_hat``, e.g. after resampling)."""
-    fraction = band_fraction(u_hat, box) if fraction is None else fraction
+    measured = fraction is None
+    fraction = band_fraction(u_hat, box) if measured else fraction
     if fraction > BAND_TOLERANCE:
+        fix = "use a finer grid or a smoother flow"
+        if measured:   # the sample holds the flow's modes (no aliasing): the 2/3 rule needs 3 m + 1 points
+            need = [max(n, 3 * highest_mode(u_hat, box, axis, BAND_TOLERANCE) + 1) for axis, n in enumerate(box.grid)]
+            fix = f"use a finer grid (at least domain.grid = {need}) or a smoother flow"
         raise ParameterError("grid", list(box.grid),
                              f"a grid that holds the flow: {fraction:.3g} of <|u|^2> at t = {t:g} is in modes "
                              f"the 2/3 rule removes (tolerance {BAND_TOLERANCE:g}; products with those modes "
-                             "alias); use a finer grid or a smoother flow")
+                             f"alias); {fix}")
 
 
 def check_divergence(u_hat: np.ndarray, box, tolerance: float, key: str, value, t: float) -> float:
@@ -164,3 +185,81 @@ def divergence_options(params: dict) -> tuple[str, float]:
     if isinstance(tolerance, bool) or not isinstance(tolerance, (int, float)) or not tolerance > 0:
         raise ParameterError("divergence_tolerance", tolerance, "a positive number")
     return choice, float(tolerance)
+
+
+# --- declarations a user flow must make: a mean flow, a period ----------------------------------
+
+MEAN_FLOW_TOLERANCE = 1e-12
+MEAN_FLOW_CHOICES = ("refuse", "allow")
+PERIOD_TOLERANCE = 1e-6
+APERIODIC = "none"
+
+
+def mean_flow_option(params: dict) -> str:
+    """The ``mean_flow`` key: ``"refuse"`` (default) or ``"allow"``."""
+    choice = params.get("mean_flow", "refuse")
+    if choice not in MEAN_FLOW_CHOICES:
+        raise ParameterError("mean_flow", choice, "one of " + ", ".join(f'"{c}"' for c in MEAN_FLOW_CHOICES))
+    return choice
+
+
+def check_mean_flow(u_hat: np.ndarray, box, t: float, choice: str, given) -> None:
+    """Refuse a uniform (k = 0) part unless ``mean_flow = "allow"``.
+
+    A uniform flow ``U0`` alone only advects B (each Fourier mode turns at ``k.U0``; it makes no
+    dynamo). Added to a flow ``u'(x)`` it is not harmless: in the frame moving with ``U0`` the flow
+    is ``u'(x + U0 t)``, a time-dependent flow, so the growth rate changes; and it enters ``u_rms``,
+    hence what Rm means. Share measured: ``|<u>|^2 / <|u|^2>`` against :data:`MEAN_FLOW_TOLERANCE`."""
+    if choice == "allow":
+        return
+    mean = u_hat[:, 0, 0, 0].real
+    total = float(np.sum(box.parseval_weights * sum(np.abs(c) ** 2 for c in u_hat)))
+    share = float(np.sum(mean**2)) / total if total > 0 else 0.0
+    if share > MEAN_FLOW_TOLERANCE:
+        shown = ", ".join(f"{v:.4g}" for v in mean)
+        raise ParameterError("mean_flow", MISSING if given is None else given,
+                             f'mean_flow = "allow" for a flow with a uniform part: <u> = ({shown}) carries '
+                             f"{share:.3g} of <|u|^2> at t = {t:g}; a uniform flow only advects B (it makes no "
+                             "dynamo), it sweeps the rest of the flow past the field (changing the growth rate) and "
+                             "it changes what Rm means (it enters u_rms); subtract it from the flow, "
+                             'or set flow.mean_flow = "allow"')
+
+
+def period_option(params: dict) -> tuple[float | None, bool]:
+    """The ``period`` key: ``(period, False)``, ``(None, True)`` for ``"none"``, ``(None, False)`` if absent."""
+    value = params.get("period")
+    if value is None:
+        return None, False
+    if value == APERIODIC:
+        return None, True
+    if isinstance(value, bool) or not isinstance(value, (int, float)) or not (value > 0 and np.isfinite(value)):
+        raise ParameterError("period", value, f'the flow\'s period (a positive number) or "{APERIODIC}" for a '
+                             "time-dependent flow that is not periodic")
+    return float(value), False
+
+
+def check_period(grid_at, period: float, scale: float) -> None:
+    """Refuse a declared period the flow does not have: ``u(t0 + P)`` against ``u(t0)``, ``t0 = 0.37 P``."""
+    t0 = 0.37 * period
+    gap = float(np.max(np.abs(grid_at(t0 + period) - grid_at(t0))))
+    if not gap <= PERIOD_TOLERANCE * max(scale, 1e-300):
+        raise ParameterError("period", period, f"the flow's period: u(t + P) differs from u(t) by up to {gap:.3g} "
+                             f"({gap / scale if scale else float('inf'):.3g} of max|u|; tolerance "
+                             f"{PERIOD_TOLERANCE:g}) at t = {t0:.6g}; give the period to full precision "
+                             "(e.g. 6.283185307179586 for 2*pi), "
+                             f'or period = "{APERIODIC}" if the flow is not periodic')
+
+
+def require_time_declaration(steady: bool, period, aperiodic: bool, how: str, change: float | None) -> None:
+    """A time-dependent user flow must declare its period or that it has none (Floquet sampling,
+    test-field averaging and the reported frequency band depend on it)."""
+    if steady or period is not None or aperiodic:
+        return
+    if change is None:
+        seen, hint = "", ""
+    elif change > 0:
+        seen, hint = f"; u changes by up to {change:.3g} between t = 0 and t = 0.5, 2", ""
+    else:
+        seen, hint = "; it returned the same u at t = 0, 0.5 and 2", ", or steady = true if it does not depend on t"
+    raise ParameterError("period", MISSING, f"the period of this time-dependent flow ({how}{seen}): "
+                         f'period = P, or period = "{APERIODIC}" for a flow that is not periodic{hint}')

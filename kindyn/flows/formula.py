@@ -87,6 +87,10 @@ class Formula:
         """The parameter names the formula uses (not coordinates, constants or functions)."""
         return set(_params(self.tree))
 
+    def coordinates(self) -> set[str]:
+        """The coordinates of :data:`VARIABLES` the formula uses (``"t" in f.coordinates()``: time-dependent)."""
+        return set(_params(self.tree, variables=True)) - self.names()
+
     def evaluate(self, x, y, z, t, parameters: Mapping[str, float]):
         """The formula at coordinates ``x, y, z`` (broadcastable arrays, e.g. ``(nx,1,1)``,
         ``(1,ny,1)``, ``(1,1,nz)``) and time ``t``; float64 result whose shape is the broadcast of

@@ -233,6 +233,8 @@ class RandomHelicalFlow:
 
     period = None
     z_independent = False
+    scale_rule = ("declared by the random-helical flow type: U = u_rms (the normalisation), k_f = energy-weighted "
+                  "mean |k| of the requested spectrum")
 
     @property
     def renewal_time(self) -> float | None:

@@ -1,6 +1,6 @@
 """User-defined flows: formulas in the case, a Python function the case names, a netCDF file.
 
-Three flow types (case keys in brackets; all take ``U``, ``k_f``, ``divergence``,
+Three flow types (case keys in brackets; all take ``U``, ``k_f``, ``mean_flow``, ``divergence``,
 ``divergence_tolerance``)::
 
     [flow] type = "formula"        ux, uy, uz = "..." ; [flow.parameters] A = 1.0 ... ; period
@@ -11,42 +11,53 @@ Three flow types (case keys in brackets; all take ``U``, ``k_f``, ``divergence``
 * Formulas are parsed by the whitelisted evaluator :mod:`kindyn.flows.formula` (no eval/exec);
   the flow is steady when no component uses ``t`` and z-independent when none uses ``z``.
 * A callable is imported only because the case names it; it is called as
-  ``f(x, y, z, t, **parameters)`` with broadcastable coordinate arrays and returns three components
-  (arrays broadcastable to the coordinates, or one ``(3, ...)`` array). A relative file path is
-  taken from the case file's folder. ``steady = true`` lets the run sample it once (checked).
+  ``f(x, y, z, t, **parameters)`` with broadcastable coordinate arrays and returns three real
+  components (arrays broadcastable to the coordinates, or one ``(3, ...)`` array; complex values
+  are refused, not cast). A relative file path is taken from the case file's folder.
+  ``steady = true`` lets the run sample it once (checked). Importing and calling it go through
+  :mod:`kindyn.flows.user_code` (its prints go to stderr; an exception or ``sys.exit`` is one line).
 * The velocity file (format in :mod:`kindyn.flows.velocity_file`) is resampled spectrally to the
   run's grid and, for a time series, interpolated linearly in time (see there).
 
 Every user flow is checked before a run (:mod:`kindyn.flows.checks`): components of the right
 shape, finite values, periodicity at the box faces (formula, callable), energy inside the 2/3-rule
-band, and relative divergence ``||div u||/||grad u|| <= divergence_tolerance`` (default 1e-6);
-``divergence = "project"`` replaces the flow by its solenoidal part instead (Leray projection on
-the grid at every evaluation; the uniform part is kept). Time-dependent flows are checked at
-:data:`CHECK_TIMES` (and a third of the period when one is declared); a failure later in a run is
-reported as :class:`~kindyn.errors.FlowError`.
+band, that the grid's samples are the flow (formula, callable: :mod:`kindyn.flows.aliasing`
+compares the interpolant with the flow between the grid points), no uniform part unless
+``mean_flow = "allow"``, and relative divergence ``||div u||/||grad u|| <= divergence_tolerance``
+(default 1e-6); ``divergence = "project"`` replaces the flow by its solenoidal part instead (Leray
+projection on the grid at every evaluation; the uniform part is kept). Time-dependent flows are
+checked at :data:`CHECK_TIMES` (and a third of the period when one is declared); a formula that
+uses ``t`` or a callable with ``steady = false`` (the default) must declare ``period = P``
+(checked: ``u(t + P) = u(t)``) or ``period = "none"``. A failure later in a run is reported as
+:class:`~kindyn.errors.FlowError`.
 
-Declared scales: ``U`` and ``k_f`` when given; otherwise measured from the grid sample at ``t = 0``:
-``U = u_rms = sqrt(<|u|^2>)`` and ``k_f = sum |k| E_k / sum E_k`` (energy-weighted mean wavenumber).
+Scales ``U`` and ``k_f`` (the Rm rule, :mod:`kindyn.flows.scales`): the case's ``flow.U``,
+``flow.k_f`` (required when ``magnetic.Rm`` is given); with ``magnetic.eta``, measured when absent.
 """
 
 from __future__ import annotations
 
-import ast
-import importlib
-import importlib.util
 import math
 from dataclasses import dataclass, field
-from pathlib import Path
 
 import numpy as np
 
 from kindyn.errors import FlowError, ParameterError
-from kindyn.flows import checks
+from kindyn.flows import checks, user_code
+from kindyn.flows.aliasing import check_aliasing
 from kindyn.flows.formula import FormulaError, parse_formula
 from kindyn.flows.gridded import grid_from_hat, hat_from_grid, is_box_grid, values_at
+from kindyn.flows.scales import resolve_scales, rms_speed
 
 CHECK_TIMES = (0.0, 0.5, 2.0)
-COMMON_KEYS = ("U", "k_f", "divergence", "divergence_tolerance")
+COMMON_KEYS = ("U", "k_f", "mean_flow", "divergence", "divergence_tolerance")
+
+
+class _Shape:
+    """A stand-in box with only a ``shape`` (for :func:`checks.grid_values` off the grid)."""
+
+    def __init__(self, shape):
+        self.shape = tuple(shape)
 
 
 class SampledVelocity:
@@ -58,13 +69,13 @@ class SampledVelocity:
         self._cache: dict = {}
 
     def call(self, x, y, z, t):
-        try:
-            with np.errstate(all="ignore"):
-                return self.raw(x, y, z, t)
-        except (ParameterError, FlowError):
-            raise
-        except Exception as exc:  # user code: report in one line, never a traceback
-            raise FlowError(f"the {self.what} raised {type(exc).__name__} at t = {t:g}: {exc}") from None
+        with np.errstate(all="ignore"):
+            return user_code.call(self.raw, self.what, t, x, y, z, t)
+
+    def evaluate(self, x, y, z, t) -> np.ndarray:
+        """The raw flow as an array ``(3, *broadcast shape)`` at any broadcastable coordinates."""
+        shape = np.broadcast_shapes(*(np.shape(c) for c in (x, y, z)))
+        return checks.grid_values(self.call(x, y, z, t), _Shape(shape), self.key, self.value, t)
 
     def grid(self, t: float) -> np.ndarray:
         x, y, z = self.box.coordinates
@@ -102,49 +113,40 @@ class SampledVelocity:
             self._cache["grid"] = u
         return tuple(u)
 
-    def check(self, times, divergence: str, tolerance: float, periodic: bool) -> np.ndarray:
-        """Run every check at ``times``; return the coefficients at the first time."""
+    def _grid_checked(self, t: float) -> np.ndarray:
+        try:
+            return self.grid(t)
+        except FlowError as exc:
+            raise ParameterError(self.key, self.value, f"a flow that evaluates on the grid ({exc})") from None
+
+    def check(self, times, divergence: str, tolerance: float, mean_flow: str, mean_given,
+              period: float | None = None) -> tuple[np.ndarray, np.ndarray]:
+        """Run every check at ``times`` (and of the declared ``period``); return the raw and the used
+        (projected when asked) coefficients at the first time."""
         first = None
         for t in times:
-            try:
-                u = self.grid(t)
-            except FlowError as exc:
-                raise ParameterError(self.key, self.value, f"a flow that evaluates on the grid ({exc})") from None
+            u = self._grid_checked(t)
             checks.check_finite(u, self.box, self.key, self.value, t)
-            if periodic:
+            try:
                 checks.check_periodic(self.call, self.box, self.key, self.value, t, float(np.max(np.abs(u))))
-            u_hat = checks.check_coefficients(hat_from_grid(u), self.box, self.key, self.value, t,
-                                              divergence, tolerance)
+                check_aliasing(self.evaluate, u, self.box, t)
+                raw_hat = hat_from_grid(u)
+                u_hat = checks.check_coefficients(raw_hat, self.box, self.key, self.value, t, divergence, tolerance)
+            except FlowError as exc:
+                raise ParameterError(self.key, self.value, f"a flow that evaluates off the grid ({exc})") from None
+            checks.check_mean_flow(raw_hat, self.box, t, mean_flow, mean_given)
             if first is None:
-                first = u_hat
+                first = (raw_hat, u_hat)
+        if period is not None:
+            scale = float(np.max(np.abs(grid_from_hat(first[0], self.box.grid))))
+            checks.check_period(self._grid_checked, period, scale)
         return first
 
 
-def measured_scales(u_hat: np.ndarray, box) -> tuple[float, float]:
-    """``(u_rms, energy-weighted mean |k|)`` of half-grid coefficients (k = 0 part excluded)."""
-    density = box.parseval_weights * sum(np.abs(c) ** 2 for c in u_hat)
-    k = np.sqrt(box.k_squared)
-    total = float(density.sum())
-    fluctuating = float(density[k > 0].sum())
-    k_f = float((density * k).sum()) / fluctuating if fluctuating > 0 else math.nan
-    return math.sqrt(total), k_f
-
-
-def scales(params: dict, u_hat, box) -> tuple[float, float]:
-    """``U`` and ``k_f`` from the case (validated) or measured (see module docstring)."""
-    measured = measured_scales(u_hat, box)
-    out = []
-    for key, value in zip(("U", "k_f"), measured):
-        given = params.get(key)
-        if given is not None:
-            if isinstance(given, bool) or not isinstance(given, (int, float)) or not (given > 0 and math.isfinite(given)):
-                raise ParameterError(key, given, "a positive number")
-            value = float(given)
-        if not (value > 0 and math.isfinite(value)):
-            raise ParameterError(key, given, f"a positive number (the flow's measured {key} is {value:g}; "
-                                 "a flow with no fluctuating part cannot drive a dynamo)")
-        out.append(value)
-    return out[0], out[1]
+def largest_change(sampler: SampledVelocity) -> float:
+    """``max |u(t) - u(0)|`` over :data:`CHECK_TIMES` (0 for a flow that does not depend on t there)."""
+    u0 = sampler._grid_checked(0.0)
+    return max(float(np.max(np.abs(sampler._grid_checked(t) - u0))) for t in CHECK_TIMES[1:])
 
 
 def unknown_keys(params: dict, allowed, flow_type: str) -> None:
@@ -183,6 +185,13 @@ def check_times(steady: bool, period) -> tuple[float, ...]:
 FORMULA_KEYS = ("ux", "uy", "uz", "parameters", "period") + COMMON_KEYS
 
 
+def _common(params: dict):
+    """``(divergence, tolerance, mean_flow, period, aperiodic)`` from the keys every user flow has."""
+    divergence, tolerance = checks.divergence_options(dict(params))
+    period, aperiodic = checks.period_option(params)
+    return divergence, tolerance, checks.mean_flow_option(params), period, aperiodic
+
+
 @dataclass(frozen=True)
 class FormulaFlow:
     """``u`` written as three formulas in the case (see the module docstring)."""
@@ -198,6 +207,9 @@ class FormulaFlow:
     period: float | None
     divergence: str
     sampler: SampledVelocity = field(repr=False, compare=False)
+    scale_rule: str = ""
+    measured_scales: tuple = ()
+    u_rms: float = math.nan
 
     @classmethod
     def from_case(cls, params: dict, box, case_dir="."):
@@ -213,19 +225,22 @@ class FormulaFlow:
             except FormulaError as exc:
                 raise ParameterError(key, text, f"a formula in kindyn's grammar ({exc})") from None
             formulas.append(formula)
-            used |= {n.id for n in ast.walk(ast.parse(text, mode="eval")) if isinstance(n, ast.Name)}
-        steady, period = "t" not in used, optional_positive(params, "period")
-        divergence, tolerance = checks.divergence_options(dict(params))
+            used |= formula.coordinates()
+        steady = "t" not in used
+        divergence, tolerance, mean_flow, period, aperiodic = _common(params)
 
         def raw(x, y, z, t):
             return tuple(f.evaluate(x, y, z, t, values) for f in formulas)
 
         sampler = SampledVelocity(raw, box, steady, divergence == "project", "ux, uy, uz",
                                   "; ".join(params[k] for k in ("ux", "uy", "uz")), "formula")
-        u_hat = sampler.check(check_times(steady, period), divergence, tolerance, periodic=True)
-        U, k_f = scales(params, u_hat, box)
+        period = None if steady else period
+        _, u_hat = sampler.check(check_times(steady, period), divergence, tolerance, mean_flow,
+                                 params.get("mean_flow"), period)
+        checks.require_time_declaration(steady, period, aperiodic, "its formulas use t", None)
+        U, k_f, rule, measured = resolve_scales(params, u_hat, box)
         return cls(params["ux"], params["uy"], params["uz"], values, U, k_f, steady, "z" not in used,
-                   None if steady else period, divergence, sampler)
+                   period, divergence, sampler, rule, measured, rms_speed(u_hat, box))
 
     def velocity(self, x, y, z, t):
         return self.sampler.velocity(x, y, z, t)
@@ -240,35 +255,7 @@ class FormulaFlow:
 # --- callable flows ------------------------------------------------------------------------------
 
 CALLABLE_KEYS = ("function", "parameters", "steady", "period") + COMMON_KEYS
-
-
-def load_function(spec, case_dir):
-    """The function named ``"module:function"`` or ``"path/file.py:function"`` (path from ``case_dir``)."""
-    expected = '"module:function" or "path/to/file.py:function"'
-    if not isinstance(spec, str) or ":" not in spec:
-        raise ParameterError("function", spec, expected)
-    target, name = spec.rsplit(":", 1)
-    if not target or not name.isidentifier():
-        raise ParameterError("function", spec, expected)
-    try:
-        if target.endswith(".py") or "/" in target or "\\" in target:
-            path = (Path(case_dir) / target).resolve()
-            if not path.is_file():
-                raise ParameterError("function", spec, f"an existing Python file ({path} not found)")
-            module_spec = importlib.util.spec_from_file_location(f"kindyn_user_flow_{abs(hash(str(path)))}", path)
-            module = importlib.util.module_from_spec(module_spec)
-            module_spec.loader.exec_module(module)
-        else:
-            module = importlib.import_module(target)
-    except ParameterError:
-        raise
-    except Exception as exc:  # user code: one line, no traceback
-        raise ParameterError("function", spec, f"a module that imports cleanly; importing {target} raised "
-                             f"{type(exc).__name__}: {exc}") from None
-    function = getattr(module, name, None)
-    if not callable(function):
-        raise ParameterError("function", spec, f"a callable named {name} in {target}")
-    return function
+load_function = user_code.load_function
 
 
 @dataclass(frozen=True)
@@ -283,6 +270,9 @@ class CallableFlow:
     period: float | None
     divergence: str
     sampler: SampledVelocity = field(repr=False, compare=False)
+    scale_rule: str = ""
+    measured_scales: tuple = ()
+    u_rms: float = math.nan
     z_independent = False
 
     @classmethod
@@ -290,25 +280,29 @@ class CallableFlow:
         unknown_keys(params, CALLABLE_KEYS, "callable")
         values = numeric_parameters(params)
         spec = params.get("function")
-        function = load_function(spec, case_dir)
         steady = params.get("steady", False)
         if not isinstance(steady, bool):
             raise ParameterError("steady", steady, "true or false")
-        period = optional_positive(params, "period")
-        divergence, tolerance = checks.divergence_options(dict(params))
+        divergence, tolerance, mean_flow, period, aperiodic = _common(params)
+        function = load_function(spec, case_dir)
 
         def raw(x, y, z, t):
             return function(x, y, z, t, **values)
 
         sampler = SampledVelocity(raw, box, False, divergence == "project", "function", spec,
                                   f"function {spec}")
-        u_hat = sampler.check(check_times(False if not steady else True, period), divergence, tolerance,
-                              periodic=True)
+        period = None if steady else period
+        _, u_hat = sampler.check(check_times(steady, period), divergence, tolerance, mean_flow,
+                                 params.get("mean_flow"), period)
         if steady:
-            _check_declared_steady(sampler, spec)
+            _check_declared_steady(sampler)
             sampler.steady = True
-        U, k_f = scales(params, u_hat, box)
-        return cls(spec, values, U, k_f, steady, None if steady else period, divergence, sampler)
+        elif period is None and not aperiodic:
+            checks.require_time_declaration(False, None, False, "a callable with steady = false, the default",
+                                            largest_change(sampler))
+        U, k_f, rule, measured = resolve_scales(params, u_hat, box)
+        return cls(spec, values, U, k_f, steady, period, divergence, sampler, rule, measured,
+                   rms_speed(u_hat, box))
 
     def velocity(self, x, y, z, t):
         return self.sampler.velocity(x, y, z, t)
@@ -320,10 +314,10 @@ class CallableFlow:
         _same_box(self.sampler.box, box)
 
 
-def _check_declared_steady(sampler: SampledVelocity, spec) -> None:
-    u0 = sampler.grid(0.0)
+def _check_declared_steady(sampler: SampledVelocity) -> None:
+    u0 = sampler._grid_checked(0.0)
     for t in CHECK_TIMES[1:]:
-        change = float(np.max(np.abs(sampler.grid(t) - u0)))
+        change = float(np.max(np.abs(sampler._grid_checked(t) - u0)))
         if change > 1e-12 * max(float(np.max(np.abs(u0))), 1e-300):
             raise ParameterError("steady", True, f"a function that does not depend on t (u changes by up to "
                                  f"{change:.3g} between t = 0 and t = {t:g}); set steady = false")

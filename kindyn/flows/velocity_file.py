@@ -7,11 +7,15 @@ File layout (what ``kindyn flow`` writes is readable as is)::
     coordinates  optional x, y, z: uniform, starting at 0, no endpoint (x_j = j L/n); the box length
                  is the ``period`` attribute or n * spacing, and must equal the case's
                  optional time (strictly increasing) for a time series
+    attributes   optional global ``U`` and ``k_f``: the flow's scales in Rm = U/(eta k_f), used
+                 when the case gives no ``flow.U``/``flow.k_f`` (``kindyn flow`` writes them;
+                 ``result_U``/``result_k_f`` of older files are read too; :mod:`kindyn.flows.scales`)
 
 Each snapshot is transformed on the file's grid, resampled spectrally to the run's grid (zero
 padding or truncation, exact for band-limited fields; :func:`kindyn.flows.gridded.resample_hat`),
-checked (finite, energy within the 2/3-rule band, divergence) and kept as Fourier coefficients on
-the band. Time: the run's ``t = 0`` is the first snapshot ``t_0``; between snapshots the field is
+checked (finite, energy within the 2/3-rule band, divergence, no uniform part unless
+``mean_flow = "allow"``) and kept as Fourier coefficients on the band.
+Time: the run's ``t = 0`` is the first snapshot ``t_0``; between snapshots the field is
 interpolated linearly; past the last snapshot it is held (``ends = "hold"``) or the series repeats
 with period ``loop_period`` (``ends = "loop"``; default ``M dt`` for ``M`` equally spaced
 snapshots, the first not repeated at the end), interpolating from the last snapshot back to the
@@ -28,14 +32,17 @@ import numpy as np
 from kindyn.errors import ParameterError
 from kindyn.flows import checks
 from kindyn.flows.gridded import band_mask, grid_from_hat, hat_from_grid, is_box_grid, resample_hat, values_at
-from kindyn.flows.user import COMMON_KEYS, optional_positive, scales, unknown_keys
+from kindyn.flows.scales import resolve_scales, rms_speed
+from kindyn.flows.user import COMMON_KEYS, optional_positive, unknown_keys
 
 FILE_KEYS = ("file", "variables", "ends", "loop_period") + COMMON_KEYS
+SCALE_ATTRIBUTES = ("U", "k_f")
 ENDS = ("hold", "loop")
 
 
 def read_velocity_file(path: Path, names, box, spec):
-    """``(times or None, data (S, 3, nx', ny', nz'))`` from the file; raise on layout problems."""
+    """``(times or None, data (S, 3, nx', ny', nz'), (U or None, k_f or None))`` from the file;
+    raise on layout problems."""
     try:
         import netCDF4  # here, not at import: validating a case must not load netCDF4
 
@@ -75,7 +82,26 @@ def read_velocity_file(path: Path, names, box, spec):
             times = np.asarray(np.ma.filled(ds.variables[tname][...], np.nan), dtype=float)
             if not np.all(np.isfinite(times)) or np.any(np.diff(times) <= 0):
                 raise ParameterError("file", spec, f"strictly increasing, finite times in {tname!r}")
-    return times, data
+        scales = tuple(_scale_attribute(ds, key, spec) for key in SCALE_ATTRIBUTES)
+    return times, data, scales
+
+
+def _scale_attribute(ds, key: str, spec):
+    """The file's declared ``U`` or ``k_f`` (global attribute; ``result_U``/``result_k_f`` of files
+    written by earlier versions of ``kindyn flow``), or None."""
+    attrs = ds.ncattrs()
+    name = key if key in attrs else f"result_{key}" if f"result_{key}" in attrs else None
+    if name is None:
+        return None
+    value = ds.getncattr(name)
+    try:
+        number = float(np.asarray(value).reshape(-1)[0]) if np.size(value) == 1 else None
+    except (TypeError, ValueError):
+        number = None
+    if number is None or not (number > 0 and np.isfinite(number)):
+        raise ParameterError("file", spec, f"a positive number in the file's attribute {name} (the flow's {key} "
+                             f"in Rm = U/(eta k_f)); got {value!r}")
+    return number
 
 
 def _check_coordinates(ds, spatial, shape, box, spec) -> None:
@@ -117,6 +143,9 @@ class VelocityFileFlow:
     coefficients: np.ndarray = field(repr=False, compare=False)   # (S, 3, nx, ny, nz//2+1)
     box: object = field(repr=False, compare=False)
     source_grid: tuple = ()
+    scale_rule: str = ""
+    measured_scales: tuple = ()
+    u_rms: float = np.nan
     _cache: dict = field(default_factory=dict, repr=False, compare=False)
     z_independent = False
 
@@ -136,7 +165,8 @@ class VelocityFileFlow:
         if ends not in ENDS:
             raise ParameterError("ends", ends, "one of " + ", ".join(f'"{e}"' for e in ENDS))
         divergence, tolerance = checks.divergence_options(dict(params))
-        times, data = read_velocity_file(path, tuple(names), box, spec)
+        mean_flow = checks.mean_flow_option(params)
+        times, data, file_scales = read_velocity_file(path, tuple(names), box, spec)
         source_grid = tuple(int(n) for n in data.shape[2:])
         mask = band_mask(box)
         coefficients = np.empty((data.shape[0], 3, *box.spectral_shape), dtype=complex)
@@ -149,13 +179,15 @@ class VelocityFileFlow:
             lost = max(0.0, 1.0 - kept / total) if total > 0 else 0.0
             coefficients[s] = checks.check_coefficients(u_hat, box, "file", spec, t, divergence, tolerance,
                                                         band_share=lost)
+            checks.check_mean_flow(u_hat, box, t, mean_flow, params.get("mean_flow"))
         period = None
         if times is not None and len(times) > 1 and ends == "loop":
             period = _loop_period(times, params, spec)
-        U, k_f = scales(params, coefficients[0], box)
+        U, k_f, rule, measured = resolve_scales(params, coefficients[0], box, file_scales)
         steady = coefficients.shape[0] == 1
         return cls(spec, tuple(names), ends, U, k_f, steady, period,
-                   None if steady else times - times[0], coefficients, box, source_grid)
+                   None if steady else times - times[0], coefficients, box, source_grid,
+                   scale_rule=rule, measured_scales=measured, u_rms=rms_speed(coefficients[0], box))
 
     def check_box(self, box) -> None:
         if self.box.lengths != box.lengths or self.box.grid != box.grid:

@@ -5,10 +5,16 @@ attribute, so the file is itself a valid ``velocity-file`` flow), the shell wave
 energy spectrum ``E_s`` and helicity spectrum ``H_s`` (``sum E_s = <|u|^2>/2``,
 ``sum H_s = <u . omega>``), and global attributes with every number of the summary (prefixed
 ``result_``), the cautions, the resolved case (JSON) and its text.
+
+The Rm rule travels with the velocity: the global attributes ``U`` and ``k_f`` are the flow's
+declared scales (as used for ``Rm = U/(eta k_f)`` in the case that wrote the file) and
+``scale_rule`` says how they were obtained; a ``velocity-file`` flow reads ``U`` and ``k_f`` back
+(:mod:`kindyn.flows.velocity_file`), so running from the file keeps eta at the same Rm.
 """
 
 from __future__ import annotations
 
+from kindyn.flows.scales import scale_rule
 
 from kindyn.output.netcdf import provenance_attributes, add_grid, add_variable, atomic_dataset, set_attributes
 
@@ -23,6 +29,9 @@ def write_flow_file(path, case, summary: dict, u, wavenumbers, energy_spectrum, 
             **provenance_attributes(case, f"kindyn flow diagnostics: {case.name}"),
             "snapshot_time": float(time),
             **scalars,
+            "U": float(case.flow.speed),
+            "k_f": float(case.flow.wavenumber),
+            "scale_rule": scale_rule(case.flow),
         })
         add_grid(ds, case.box)
         for i, axis in enumerate("xyz"):
