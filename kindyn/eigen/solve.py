@@ -140,7 +140,19 @@ def _arpack(settings) -> dict:
 
 
 def solve_modes(case, count: int | None = None, progress=None, with_fields: bool = True) -> ModesOutcome:
-    """Leading eigenmodes of ``case`` (see module doc); ``progress(text)`` is told of each solve."""
+    """Leading eigenmodes of ``case`` (see module doc); ``progress(text)`` is told of each solve.
+
+    Eigen-solves run in one process: the Krylov vectors live whole in that process, and the planar
+    (single-k_z) method is already small. Launched on several MPI processes they refuse before any
+    computation; time stepping (``kindyn run``) is the distributed route to the leading growth rate.
+    """
+    from kindyn.transforms.launch import launched_processes
+
+    processes = launched_processes()
+    if processes > 1:
+        raise CaseError(case.path, "modes", f"{processes} MPI processes",
+                        "one process: eigen-solves are not distributed (run kindyn modes without mpiexec, or use "
+                        "kindyn run, which is)")
     settings = case.modes
     count = count or settings.count
     kind = flow_kind(case)

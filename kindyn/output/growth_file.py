@@ -13,6 +13,7 @@ import numpy as np
 
 from kindyn.diagnostics.measures import MAGNETIC_ENERGY, SPECTRUM, run_series
 from kindyn.diagnostics.spectra import resolution_caution
+from kindyn.flows.scales import scale_rule
 from kindyn.output.netcdf import provenance_attributes, add_grid, add_variable, atomic_dataset, set_attributes
 
 
@@ -31,6 +32,7 @@ def result_summary(case, outcome) -> dict:
         "Rm": case.Rm,
         "eta": case.eta,
         "U": flow.speed,
+        "scale_rule": scale_rule(flow),
         "u_rms": outcome.u_rms,
         "Rm_rms": outcome.u_rms / (case.eta * flow.wavenumber),
         "k_f": flow.wavenumber,
