@@ -6,9 +6,10 @@
    identical inputs, so equality to round-off, rtol = 1e-12). The summary netCDF holds the same
    numbers with Rm as the coordinate; re-running reuses every point; extending the list runs only
    the new point (identity = content of the resolved case, not position).
-2. A sweep with an invalid point (Rm = -1), a point whose flow turns NaN during the run, and a
-   point stopped by max_time: each is recorded (failed with its message / unconverged) and the
-   valid point still completes. The valid point's flow u = (sin z, cos z, 0) is planar, so it
+2. A sweep with a point whose flow turns NaN during the run and a point stopped by max_time: each
+   is recorded (failed with its message / unconverged) and the valid point still completes. (An
+   invalid swept value, such as Rm = -1, is a case error before any point runs:
+   tests/test_results_reporting.py.) The valid point's flow u = (sin z, cos z, 0) is planar, so it
    cannot be a dynamo (Zeldovich 1957, Sov. Phys. JETP 4, 460, antidynamo theorem for planar
    flows; from memory): gamma < 0.
 
@@ -91,6 +92,9 @@ type = "formula"
 ux = "sin(z)"
 uy = "cos(z)"
 uz = "0"
+U = 1.0
+k_f = 1.0
+period = "none"
 [magnetic]
 Rm = 3.0
 [run]
@@ -102,10 +106,9 @@ figure = true
 field = false
 [sweep]
 combine = "zip"
-"flow.ux" = ["sin(z)", "sin(z)*sqrt(2 - t)", "sin(z)", "sin(z)"]
-"flow.uy" = ["cos(z)", "cos(z)*sqrt(2 - t)", "cos(z)", "cos(z)"]
-"magnetic.Rm" = [3.0, 3.0, -1.0, 3.0]
-"run.max_time" = [2000.0, 2000.0, 2000.0, 12.0]
+"flow.ux" = ["sin(z)", "sin(z)*sqrt(2 - t)", "sin(z)"]
+"flow.uy" = ["cos(z)", "cos(z)*sqrt(2 - t)", "cos(z)"]
+"run.max_time" = [2000.0, 2000.0, 12.0]
 """
 
 
@@ -116,17 +119,16 @@ def test_failing_points_are_recorded_and_the_sweep_goes_on(write_case, tmp_path,
     captured = capsys.readouterr()
     assert code == 0 and "Traceback" not in captured.err
     points = json.loads(captured.out)["points"]
-    good, nan, invalid, short = points
+    good, nan, short = points
     assert good["status"] == "converged" and good["growth_rate"] < 0  # planar flow: no dynamo (Zeldovich)
     assert nan["status"] == "failed" and "nan" in nan["message"] and nan["growth_rate"] is None
-    assert invalid["status"] == "failed" and "magnetic.Rm" in invalid["message"] and invalid["identity"] is None
     assert short["status"] == "unconverged" and "max_time" in short["message"] and short["growth_rate"] is not None
-    assert "FAILED" in captured.err and "ETA" in captured.err
+    assert "FAILED" in captured.err and "ETA" in captured.err  # progress
     summary = read_dataset(json.loads(captured.out)["summary"])
-    assert list(summary["status"]) == ["converged", "failed", "failed", "unconverged"]
-    assert np.isnan(summary["growth_rate"][1]) and summary["converged"].tolist() == [1, 0, 0, 0]
+    assert list(summary["status"]) == ["converged", "failed", "unconverged"]
+    assert np.isnan(summary["growth_rate"][1]) and summary["converged"].tolist() == [1, 0, 0]
     assert (out / "case-sweep.png").exists()
     # a re-run retries the failed run (it fails again), reuses the finished ones
     again = json.loads((main(["sweep", str(path), "--out", str(out), "--json", "--quiet"]) == 0
                         and capsys.readouterr().out) or "{}")["points"]
-    assert [p["reused"] for p in again] == [True, False, False, True]
+    assert [p["reused"] for p in again] == [True, False, True]

@@ -10,7 +10,13 @@ ensemble is summarised in ``NAME-ensemble.nc`` and on the terminal (``--json``: 
     standard error     s / sqrt(N)                                        (of the mean)
 
 Only realisations with a finite growth rate enter; those that did not converge are counted and
-flagged, since their rates carry an extra estimation error (``mean_run_error``).
+flagged, since their rates carry an extra estimation error (``mean_run_error``). A realisation that
+stopped before its own error estimate existed ("not converged, no estimate yet") still enters with
+the rate its file holds (``estimate_available`` false, ``growth_rate_error`` null): the spread of
+the ensemble, not the run, measures the uncertainty of the mean. The cautions of the members (resolution warnings, no estimate, not converged)
+are carried into the summary: the ``cautions`` list (stdout, or the JSON and stderr with
+``--json``), each member's ``resolution_warning`` and ``cutoff_ratio`` (JSON and netCDF variables)
+and the netCDF attribute ``caution``.
 """
 
 from __future__ import annotations
@@ -20,7 +26,9 @@ import math
 import numpy as np
 
 from kindyn.case import load_case
-from kindyn.commands.common import add_case_arguments, case_from_args, clean_number, output_folder, print_json, say
+from kindyn.commands.common import (NO_ESTIMATE, Reporter, add_case_arguments, add_quiet_argument, case_from_args,
+                                    clean_number, has_estimate, number_text, output_folder, with_error)
+from kindyn.diagnostics.spectra import resolution_caution
 from kindyn.errors import CaseError
 from kindyn.output.growth_file import result_summary, write_growth_file
 from kindyn.output.netcdf import CONVENTIONS, add_variable, atomic_dataset, set_attributes
@@ -32,7 +40,7 @@ HELP = "run N realisations of a random flow (flow seeds s, s+1, ...): mean growt
 def add_arguments(parser) -> None:
     add_case_arguments(parser)
     parser.add_argument("--count", type=int, required=True, metavar="N", help="number of realisations")
-    parser.add_argument("--quiet", action="store_true", help="no progress lines on stderr")
+    add_quiet_argument(parser)
 
 
 def ensemble_statistics(rates) -> dict:
@@ -45,7 +53,34 @@ def ensemble_statistics(rates) -> dict:
             "standard_error": clean_number(spread / math.sqrt(n)) if n > 1 else None}
 
 
+def member_cautions(members: list, threshold: float) -> list[str]:
+    """The members' cautions, one line per kind (see module docstring)."""
+    out = []
+    count = len(members)
+
+    def seeds(chosen):
+        return ", ".join(str(m["seed"]) for m in chosen)
+
+    warned = [m for m in members if m["resolution_warning"]]
+    if warned:
+        worst = max(warned, key=lambda m: m["cutoff_ratio"] if m["cutoff_ratio"] is not None else -1.0)
+        text = resolution_caution(worst["cutoff_ratio"], threshold) if worst["cutoff_ratio"] is not None else \
+            "possibly under-resolved: under-resolved runs can show spurious growth; repeat on a finer grid"
+        out.append(f"{len(warned)} of {count} realisation(s) may be under-resolved (flow seeds {seeds(warned)}; "
+                   f"worst: seed {worst['seed']}): {text}")
+    missing = [m for m in members if not m["estimate_available"]]
+    if missing:
+        out.append(f"{len(missing)} of {count} realisation(s) {NO_ESTIMATE} (flow seeds {seeds(missing)}): "
+                   "their rates have no error bar of their own; the spread measures the scatter of the mean")
+    unconverged = [m for m in members if m["estimate_available"] and not m["converged"]]
+    if unconverged:
+        out.append(f"{len(unconverged)} of {count} realisation(s) did not converge (flow seeds "
+                   f"{seeds(unconverged)}): their rates carry their reported errors")
+    return out
+
+
 def execute(args) -> int:
+    report = Reporter("ensemble", args)
     base = case_from_args(args)
     if args.count < 1:
         raise CaseError("--count", "count", args.count, "a whole number >= 1")
@@ -53,44 +88,61 @@ def execute(args) -> int:
     if isinstance(first, bool) or not isinstance(first, int):
         raise CaseError(base.path, "flow.type", base.flow_type,
                         "a random flow with a seed (e.g. \"random-helical\") for an ensemble")
+    cases = [load_case(args.case, [*args.overrides, f"flow.seed={first + i}"]) for i in range(args.count)]
     out = output_folder(args)
     members = []
-    for i in range(args.count):
+    for i, case in enumerate(cases):
         seed = first + i
-        case = load_case(args.case, [*args.overrides, f"flow.seed={seed}"])
-        if not args.quiet:
-            say(f"kindyn ensemble: realisation {i + 1}/{args.count}, flow seed {seed}, Rm = {case.Rm:.6g}")
+        report.progress(f"kindyn ensemble: realisation {i + 1}/{args.count}, flow seed {seed}, Rm = {case.Rm:.6g}")
         outcome = run_growth(case)
         path = out / f"{case.name}-seed{seed}.nc"
-        write_growth_file(path, case, outcome, None, extra={"ensemble_member": i, "flow_seed": seed})
+        caution = (resolution_caution(outcome.cutoff_ratio, case.run.resolution_threshold)
+                   if outcome.resolution_warning else "")
+        write_growth_file(path, case, outcome, None,
+                          extra={"ensemble_member": i, "flow_seed": seed, "resolution_caution": caution})
         summary = result_summary(case, outcome)
         members.append({"seed": seed, "growth_rate": summary["growth_rate"],
                         "growth_rate_error": summary["growth_rate_error"], "converged": summary["converged"],
-                        "stop_reason": summary["stop_reason"], "output": str(path)})
-        if not args.quiet:
-            rate, error = summary["growth_rate"], summary["growth_rate_error"]
-            say(f"  gamma = {'n/a' if rate is None else f'{rate:+.6g}'} +- {'n/a' if error is None else f'{error:.2g}'}"
-                f" ({'converged' if summary['converged'] else outcome.stop_reason})")
+                        "estimate_available": has_estimate(summary),
+                        "stop_reason": summary["stop_reason"],
+                        "resolution_warning": bool(outcome.resolution_warning),
+                        "cutoff_ratio": clean_number(outcome.cutoff_ratio), "output": str(path)})
+        report.progress("  " + member_line(members[-1]))
     stats = ensemble_statistics([m["growth_rate"] for m in members])
     errors = [m["growth_rate_error"] for m in members if m["growth_rate_error"] is not None]
     unconverged = sum(not m["converged"] for m in members)
+    cautions = member_cautions(members, base.run.resolution_threshold)
     result = {"count": args.count, "first_seed": first, "Rm": base.Rm, "eta": base.eta, **stats,
               "mean_run_error": clean_number(float(np.mean(errors))) if errors else None,
-              "unconverged": unconverged, "members": members}
+              "unconverged": unconverged,
+              "resolution_warnings": sum(m["resolution_warning"] for m in members),
+              "resolution_warning": any(m["resolution_warning"] for m in members),
+              "cautions": cautions, "members": members}
     path = out / f"{base.name}-ensemble.nc"
     _write_ensemble_file(path, base, result)
     result["output"] = str(path)
-    if args.json:
-        print_json(result)
-    if not args.quiet:
-        def num(value):
-            return "n/a" if value is None else f"{value:.6g}"
-
-        say(f"ensemble of {args.count}: mean gamma = {num(result['mean_growth_rate'])}, spread = "
-            f"{num(result['spread'])}, standard error = {num(result['standard_error'])}"
-            + (f"; {unconverged} realisation(s) did not converge" if unconverged else ""))
-        say(f"wrote {path}")
+    for m in members:
+        report.result(f"  flow seed {m['seed']}: {member_line(m)}")
+    mean = number_text(result["mean_growth_rate"], sign=True) if result["standard_error"] is None else \
+        with_error(result["mean_growth_rate"], result["standard_error"], sign=True) + " (standard error)"
+    report.result(f"ensemble of {args.count} at Rm = {base.Rm:.6g}: mean gamma = {mean}, "
+                  f"spread = {number_text(result['spread'])}, {result['members_used']} realisation(s) used"
+                  + (f"; {unconverged} did not converge" if unconverged else ""))
+    for caution in cautions:
+        report.caution(caution)
+    report.result(f"wrote {path}")
+    report.finish(result)
     return 0
+
+
+def member_line(m: dict) -> str:
+    if not m["estimate_available"]:
+        rate = "" if m["growth_rate"] is None else f"; gamma = {m['growth_rate']:+.4g} without an error bar"
+        return f"{NO_ESTIMATE} ({m['stop_reason']}{rate})" + (
+            ", possibly under-resolved" if m["resolution_warning"] else "")
+    state = "converged" if m["converged"] else m["stop_reason"]
+    text = f"gamma = {with_error(m['growth_rate'], m['growth_rate_error'], sign=True)} ({state})"
+    return text + (", possibly under-resolved" if m["resolution_warning"] else "")
 
 
 def _write_ensemble_file(path, case, result: dict) -> None:
@@ -102,6 +154,7 @@ def _write_ensemble_file(path, case, result: dict) -> None:
     with atomic_dataset(path) as ds:
         set_attributes(ds, {"Conventions": CONVENTIONS, "title": f"kindyn ensemble of {case.name}",
                             "case_file": case.path, "case_text": case.text,
+                            "caution": "; ".join(result["cautions"]),
                             **{f"result_{k}": v for k, v in result.items() if k != "members"}})
         ds.createDimension("member", len(members))
         add_variable(ds, "flow_seed", ("member",), np.asarray([m["seed"] for m in members]), dtype="i8",
@@ -112,3 +165,8 @@ def _write_ensemble_file(path, case, result: dict) -> None:
                      long_name="estimation uncertainty of gamma within the run")
         add_variable(ds, "converged", ("member",), np.asarray([int(m["converged"]) for m in members]),
                      dtype="i1", long_name="1 when the run's estimate converged")
+        add_variable(ds, "resolution_warning", ("member",),
+                     np.asarray([int(m["resolution_warning"]) for m in members]), dtype="i1",
+                     long_name="1 when the realisation may be under-resolved (see the attribute caution)")
+        add_variable(ds, "cutoff_ratio", ("member",), column("cutoff_ratio"),
+                     long_name="magnetic spectrum at the dealiasing cut-off over its peak")

@@ -1,10 +1,12 @@
 """``kindyn modes CASE.toml``: leading eigenvalues and eigenfields by a Krylov eigen-solve.
 
-Prints the leading eigenvalues ``p = gamma + i omega`` with their residual norms (a table on stdout;
-progress and cautions on stderr); writes the
+Prints the leading eigenvalues ``p = gamma + i omega`` with their residual norms (a table), the
+leading one with its error bound and whether it converged, and the cautions on stdout (progress on
+stderr; ``--json``: one object, cautions also on stderr); writes the
 eigenfields (physical space, real and imaginary parts) to ``OUT/NAME-modes.nc`` and a figure of the
 leading mode's ``|B|`` on slices to ``OUT/NAME-modes.png``. ``--json`` prints one object with at
-least ``eigenvalues`` (list of ``[gamma, omega]``) and ``residuals``.
+least ``eigenvalues`` (list of ``[gamma, omega]``), ``residuals``, ``growth_rate``,
+``growth_rate_error`` (the bound ``residual / T``), ``frequency``, ``converged`` and ``cautions``.
 """
 
 from __future__ import annotations
@@ -13,8 +15,9 @@ import math
 
 import numpy as np
 
-from kindyn.commands.common import add_case_arguments, case_from_args, output_folder, print_json, say
-from kindyn.eigen.solve import solve_modes
+from kindyn.commands.common import (Reporter, add_case_arguments, add_quiet_argument, case_from_args, number_text,
+                                    output_folder, with_error)
+from kindyn.eigen.solve import point_summary, solve_modes
 from kindyn.errors import CaseError
 from kindyn.diagnostics.spectra import resolution_caution
 
@@ -28,17 +31,21 @@ def add_arguments(parser) -> None:
     add_case_arguments(parser)
     parser.add_argument("--count", type=int, default=None, metavar="N",
                         help="number of leading eigenvalues (overrides modes.count)")
-    parser.add_argument("--quiet", action="store_true", help="no progress lines on stderr")
+    add_quiet_argument(parser)
 
 
 def summary_of(case, outcome) -> dict:
     lead = outcome.leading
+    point = point_summary(case, outcome)
     return {
         "eigenvalues": [[m.growth_rate, m.frequency] for m in outcome.modes],
         "residuals": [m.residual for m in outcome.modes],
         "vertical_wavenumbers": [m.kz for m in outcome.modes] if outcome.method == "planar" else None,
         "growth_rate": lead.growth_rate,
+        "growth_rate_error": point["growth_rate_error"],
         "frequency": lead.frequency,
+        "converged": point["converged"],
+        "stop_reason": point["stop_reason"],
         "method": outcome.method,
         "periodic": outcome.periodic,
         "frequency_modulus": outcome.frequency_modulus,
@@ -95,23 +102,35 @@ def leading_slices(case, outcome) -> list:
             ("|B| on y = 0", section, (Lx, height), ("x", "z"))]
 
 
+def leading_line(summary: dict, outcome) -> str:
+    lead = outcome.leading
+    where = f" at kz = {lead.kz:.6g}" if outcome.method == "planar" else ""
+    state = "converged" if summary["converged"] else f"NOT converged ({summary['stop_reason']})"
+    return (f"leading eigenvalue{where}: growth rate gamma = "
+            f"{with_error(summary['growth_rate'], summary['growth_rate_error'], sign=True)}, frequency omega = "
+            f"{number_text(summary['frequency'])}, {state} (residual {lead.residual:.2g}); "
+            f"Rm = {number_text(summary['Rm'])}, eta = {number_text(summary['eta'])}")
+
+
 def execute(args) -> int:
+    report = Reporter("modes", args)
     case = case_from_args(args)
     if args.count is not None and args.count < 1:
         raise CaseError("", "--count", args.count, "a whole number >= 1")
     out = output_folder(args)
     nc_path, png_path = out / f"{case.name}-modes.nc", out / f"{case.name}-modes.png"
-    if not args.quiet:
-        say(f"kindyn modes {case.path}: {case.flow_type} flow, grid {list(case.box.grid)}, "
-            f"Rm = {case.Rm:.6g} (eta = {case.eta:.6g})")
-    progress = None if args.quiet else (lambda text: say("  " + text))
+    report.progress(f"kindyn modes {case.path}: {case.flow_type} flow, grid {list(case.box.grid)}, "
+                    f"Rm = {case.Rm:.6g} (eta = {case.eta:.6g})")
+    progress = None if report.quiet else (lambda text: report.progress("  " + text))
     outcome = solve_modes(case, count=args.count, progress=progress)
     summary = summary_of(case, outcome)
     cautions = [TIME_STEP_CAUTION.format(dt=outcome.time_step)]
     if outcome.resolution_warning:
-        caution = resolution_caution(outcome.cutoff_ratio, case.run.resolution_threshold, what="leading eigenfield's spectrum")
-        cautions.insert(0, caution)
-        say(f"kindyn modes: warning: {caution}")
+        cautions.insert(0, resolution_caution(outcome.cutoff_ratio, case.run.resolution_threshold,
+                                              what="leading eigenfield's spectrum"))
+    if not summary["converged"]:
+        cautions.append(f"the leading eigenvalue did not converge: {summary['stop_reason']} (residual "
+                        f"{outcome.leading.residual:.2g}, modes.tolerance {case.modes.tolerance:g})")
     from kindyn.output.modes_file import write_modes_file
 
     write_modes_file(nc_path, case, outcome, summary, cautions)
@@ -129,12 +148,13 @@ def execute(args) -> int:
     summary["output"] = str(nc_path)
     summary["figure"] = figure
     summary["cautions"] = cautions
-    if args.json:
-        print_json(summary)
-    else:
-        print("\n".join(eigenvalue_table(outcome)), flush=True)
-    if not args.quiet:
-        say(f"{outcome.applications} propagations over T = {outcome.propagation_time:.4g} "
-            f"(dt = {outcome.time_step:.4g}), {outcome.wall_seconds:.1f} s; wrote {nc_path}"
-            + (f" and {png_path}" if figure else ""))
+    for line in eigenvalue_table(outcome):
+        report.result(line)
+    report.result(leading_line(summary, outcome))
+    for caution in cautions:
+        report.caution(caution)
+    report.result(f"{outcome.applications} propagations over T = {outcome.propagation_time:.4g} "
+                  f"(dt = {outcome.time_step:.4g}), {outcome.wall_seconds:.1f} s; wrote {nc_path}"
+                  + (f" and {png_path}" if figure else ""))
+    report.finish(summary)
     return 0

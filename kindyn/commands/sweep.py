@@ -3,13 +3,18 @@
 Points run in local worker processes (default: as many as fit, workers x threads-per-run <= cores)
 or on a Dask distributed cluster (``--scheduler ADDRESS``). Re-running the same command reuses
 every finished point (identified by the content of its resolved case) and runs the rest.
+
+The results (critical values with their uncertainties, dynamo windows, resolution studies, cautions,
+files written) go to stdout; per-point progress to stderr. A sign change whose sign is not certain
+at one end of its bracket (``|gamma| <= error``) is printed as "may turn positive/negative" with
+the bracket's growth rates, and listed among the cautions.
 """
 
 from __future__ import annotations
 
 from pathlib import Path
 
-from kindyn.commands.common import add_case_arguments, clean_number, print_json, say
+from kindyn.commands.common import Reporter, add_case_arguments, add_quiet_argument, clean_number, with_error
 from kindyn.errors import ParameterError
 
 HELP = "run a parameter sweep (e.g. growth rate versus Rm): dynamo windows, resolution studies, Dask clusters"
@@ -28,10 +33,11 @@ def add_arguments(parser) -> None:
     parser.add_argument("--grids", default=None, metavar="LIST",
                         help='resolution study: also sweep domain.grid over e.g. "16,24,32" or "16x16x32,24x24x48"')
     parser.add_argument("--no-figure", action="store_true", help="do not write the sweep figure")
-    parser.add_argument("--quiet", action="store_true", help="no progress lines on stderr")
+    add_quiet_argument(parser)
 
 
 def execute(args) -> int:
+    report = Reporter("sweep", args)
     from kindyn.sweep.driver import SweepOptions, run_sweep
     from kindyn.sweep.resolution import parse_grids
 
@@ -42,13 +48,14 @@ def execute(args) -> int:
     options = SweepOptions(out=Path(args.out), workers=args.workers, threads=args.threads_per_run,
                            scheduler=args.scheduler, refine=True if args.refine else None,
                            grids=parse_grids(args.grids) if args.grids else None,
-                           figure=False if args.no_figure else None, say=None if args.quiet else say)
+                           figure=False if args.no_figure else None, say=report.progress_callback)
     result = run_sweep(args.case, args.overrides, options)
-    if args.json:
-        print_json(json_report(result))
-    if not args.quiet:
-        for line in report_lines(result):
-            say(line)
+    for line in report_lines(result, cautions=False):
+        report.result(line)
+    for caution in all_cautions(result):
+        report.caution(caution)
+    report.result(written_line(result))
+    report.finish(json_report(result))
     return 0
 
 
@@ -65,7 +72,7 @@ def json_report(result) -> dict:
     return {"summary": str(result.summary_path), "figure": str(result.figure_path) if result.figure_path else None,
             "keys": list(result.spec.keys), "critical_key": result.spec.critical, "points": points,
             "critical": [_finite_dict(c) for c in result.critical], "windows": result.windows,
-            "resolution": result.resolution, "cautions": result.cautions, "wall_seconds": result.wall_seconds}
+            "resolution": result.resolution, "cautions": all_cautions(result), "wall_seconds": result.wall_seconds}
 
 
 def _finite_dict(c: dict) -> dict:
@@ -73,17 +80,82 @@ def _finite_dict(c: dict) -> dict:
 
 
 def _end(end: dict) -> str:
-    return f"{end['value']:.5g} +- {end['uncertainty']:.2g}"
+    text = f"{end['value']:.5g} +- {end['uncertainty']:.2g}"
+    return text if end.get("sign_certain", True) else text + " (sign uncertain)"
 
 
-def report_lines(result) -> list[str]:
+def _uncertain_reason(c: dict) -> str:
+    (x0, x1), (g0, g1), (s0, s1) = c["bracket"], c["growth_rates"], c["errors"]
+    ends = [f"{x:.5g}: gamma = {with_error(g, s, sign=True)}" for x, g, s in ((x0, g0, s0), (x1, g1, s1))
+            if not abs(g) > s]
+    return "sign uncertain: |gamma| <= its error at " + "; ".join(ends)
+
+
+def uncertain_cautions(result) -> list[str]:
     key = result.spec.critical
-    lines = []
+    out = []
+    for c in result.critical:
+        if not c["sign_certain"]:
+            where = ", ".join(f"{k} = {v}" for k, v in c["line"].items())
+            out.append(f"the sign change of gamma near {key} = {c['value']:.5g} (between {c['bracket'][0]:.5g} and "
+                       f"{c['bracket'][1]:.5g}{', ' + where if where else ''}) is not certain ({_uncertain_reason(c)}): "
+                       "tighten run.tolerance or add points there")
+    return out
+
+
+def all_cautions(result) -> list[str]:
+    return list(result.cautions) + uncertain_cautions(result)
+
+
+def written_line(result) -> str:
+    return (f"wrote {result.summary_path}" + (f" and {result.figure_path}" if result.figure_path else "")
+            + f" ({result.wall_seconds:.1f} s)")
+
+
+def point_line(row: dict) -> str:
+    """One point of the sweep: its swept values, gamma +- error, status (and a resolution flag)."""
+    label = ", ".join(f"{k} = {_value_text(v)}" for k, v in row["values"].items())
+    status = row.get("status")
+    if status == "failed":
+        return f"  {label}: FAILED: {row.get('message')}"
+    g, e = row.get("growth_rate"), row.get("growth_rate_error")
+    if g is None or (isinstance(g, float) and g != g):
+        text = "gamma = n/a"
+    elif e is None or (isinstance(e, float) and not e < float("inf")):
+        text = f"gamma = {g:+.5g} (no error estimate yet)"
+    else:
+        text = f"gamma = {with_error(g, e, sign=True)}"
+    omega = row.get("frequency")
+    if omega is not None and omega == omega:
+        text += f", omega = {omega:.5g}"
+    flags = [status or "pending"] + (["possibly under-resolved"] if row.get("resolution_warning") else []) + \
+        (["reused"] if row.get("reused") else []) + (["refinement"] if row.get("refinement") else [])
+    return f"  {label}: {text} ({', '.join(flags)})"
+
+
+def _value_text(value) -> str:
+    if isinstance(value, float):
+        return f"{value:.6g}"
+    if isinstance(value, (list, tuple)):
+        return "x".join(map(str, value)) if all(isinstance(v, int) for v in value) else str(list(value))
+    return str(value)
+
+
+def report_lines(result, cautions: bool = True) -> list[str]:
+    """The text report: critical values, windows, resolution studies (and, with ``cautions``, the
+    cautions and the files written)."""
+    key = result.spec.critical
+    lines = [point_line(row) for row in result.rows]
     for c in result.critical:
         where = ", ".join(f"{k} = {v}" for k, v in c["line"].items())
-        lines.append(f"gamma {'turns positive' if c['direction'] == 'opens' else 'turns negative'} at "
-                     f"{key} = {c['value']:.5g} +- {c['uncertainty']:.2g}"
-                     f" (between {c['bracket'][0]:.5g} and {c['bracket'][1]:.5g})" + (f" for {where}" if where else ""))
+        turns = "turns positive" if c["direction"] == "opens" else "turns negative"
+        if c["sign_certain"]:
+            head = f"gamma {turns} at {key} = {c['value']:.5g} +- {c['uncertainty']:.2g}"
+        else:
+            head = f"gamma may {turns.replace('turns', 'turn')} near {key} = {c['value']:.5g} +- {c['uncertainty']:.2g}"
+        tail = "" if c["sign_certain"] else f"; {_uncertain_reason(c)}"
+        lines.append(head + f" (between {c['bracket'][0]:.5g} and {c['bracket'][1]:.5g}{tail})"
+                     + (f" for {where}" if where else ""))
     for w in result.windows:
         low = _end(w["lower"]) if w["lower"] else f"below {w['scan'][0]:g}"
         high = _end(w["upper"]) if w["upper"] else f"above {w['scan'][1]:g}"
@@ -97,8 +169,7 @@ def report_lines(result) -> list[str]:
         lines.append(f"resolution study{' (' + fixed + ')' if fixed else ''}: {gammas}; last change "
                      f"{entry['changes'][-1]:+.3g} (combined uncertainty {entry['combined_errors'][-1]:.2g}): "
                      + verdict)
-    for caution in result.cautions:
-        lines.append(f"caution: {caution}")
-    lines.append(f"wrote {result.summary_path}" + (f" and {result.figure_path}" if result.figure_path else "")
-                 + f" ({result.wall_seconds:.1f} s)")
+    if cautions:
+        lines += [f"caution: {caution}" for caution in all_cautions(result)]
+        lines.append(written_line(result))
     return lines

@@ -18,11 +18,12 @@ def _errorbar(ax, x, y, err, **kw):
 
 
 def coefficients_versus_K(path, K, alpha, alpha_err, eta_t, eta_t_err, alpha_soca, eta_t_soca, title,
-                          fits=None, note: str = "") -> None:
+                          fits=None, note: str = "", alpha_uniform=(None, None)) -> None:
     """Two panels: alpha(K) and eta_t(K) (full, with error bars) beside SOCA, and fitted kernels.
 
     ``fits`` (optional) maps ``"alpha"``, ``"eta_t"``, ``"alpha_soca"``, ``"eta_t_soca"`` to callables
-    ``K -> value`` drawn as lines.
+    ``K -> value`` drawn as lines. ``alpha_uniform``: ``(full, SOCA)`` in-plane alpha of the uniform
+    test fields (None when not computed), drawn at K = 0 (the kernel fits of alpha pass through it).
     """
     K = np.asarray(K, float)
     fig = new_figure(figsize=(9.6, 3.8))
@@ -32,6 +33,11 @@ def coefficients_versus_K(path, K, alpha, alpha_err, eta_t, eta_t_err, alpha_soc
                                              (axes[1], "eta_t", eta_t, eta_t_err, eta_t_soca, r"$\eta_t$")):
         _errorbar(ax, K, full, err, fmt="o", color="C0", label="test fields (full)")
         ax.plot(K, soca, "s", mfc="none", color="C3", label="SOCA")
+        if name == "alpha":
+            for value, marker, color, text in ((alpha_uniform[0], "D", "C0", "uniform fields (K = 0)"),
+                                               (alpha_uniform[1], "D", "C3", "uniform fields, SOCA")):
+                if value is not None and np.isfinite(value):
+                    ax.plot([0.0], [value], marker, mfc="none" if color == "C3" else color, color=color, label=text)
         if fits:
             for key, style, color in ((name, "-", "C0"), (name + "_soca", "--", "C3")):
                 if fits.get(key) is not None:

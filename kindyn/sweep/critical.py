@@ -15,7 +15,9 @@ Its uncertainty combines
   of the bracket,
 
 in quadrature, and is capped at the distance to the farther bracket end when both end signs are
-certain (``|g| > sigma``), since the root then lies inside the bracket.
+certain (``|g| > sigma``), since the root then lies inside the bracket. When an end's sign is not
+certain (``|g| <= sigma``) the sign change itself may not exist: ``sign_certain`` is false, and
+reports say "may turn positive/negative" with the growth rates of the bracket ends.
 
 Refinement (``--refine``) places new runs inside every bracket whose end signs are certain and
 which is wider than ``refine_width`` times its centre: ``m`` equally spaced interior points per
@@ -66,7 +68,8 @@ class Window:
 
     def as_dict(self) -> dict:
         def end(c):
-            return None if c is None else {"value": c.value, "uncertainty": c.uncertainty}
+            return None if c is None else {"value": c.value, "uncertainty": c.uncertainty,
+                                           "sign_certain": c.sign_certain}
         return {"lower": end(self.lower), "upper": end(self.upper), "scan": list(self.scan)}
 
 

@@ -3,8 +3,10 @@
 Order of work:
 
 1. read the case file, apply ``--set`` overrides, validate ``[sweep]`` (plus ``--grids``);
-2. resolve every point's case (invalid points are recorded as failed; if *no* point is valid the
-   first error is raised, since then the sweep itself is wrong);
+2. resolve and validate every listed point's case, computing nothing: an invalid swept value
+   (``magnetic.Rm = -1``, a non-number) is a case error naming the swept key, raised before any
+   point runs (:func:`refuse_invalid_points`); only points added later by refinement can still be
+   recorded as failed;
 3. reuse every point whose record ``OUT/points/<identity>.json`` names a complete netCDF file, run
    the others (at most the points in flight are lost if the sweep is killed);
 4. after every finished point rewrite ``OUT/<name>-sweep.nc`` (the summary is always readable);
@@ -23,7 +25,7 @@ from typing import Callable
 
 from kindyn.case import load_case
 from kindyn.case.load import apply_overrides, read_toml
-from kindyn.errors import MISSING, CaseError
+from kindyn.errors import MISSING, CaseError, KindynError
 from kindyn.sweep import critical as crit
 from kindyn.sweep.execution import (STATUS_FAILED, STATUS_PENDING, LocalPool, check_local_layout, make_task,
                                     output_path, read_record)
@@ -259,7 +261,9 @@ def run_sweep(path, overrides=(), options: SweepOptions | None = None) -> SweepR
 
         spec = dataclasses.replace(spec, refine=options.refine)
     sweep = _Sweep(path, overrides, spec, text, options)
-    listed = sweep.add_points(resolve_points(path, text, spec, overrides))
+    resolved = resolve_points(path, text, spec, overrides)
+    refuse_invalid_points(path, text, spec, resolved)
+    listed = sweep.add_points(resolved)
     valid = [p for p in sweep.points if p.case is not None]
     if not valid:
         load_case(path, sweep.points[0].overrides, text=text)  # raises the first point's error
@@ -285,6 +289,37 @@ def run_sweep(path, overrides=(), options: SweepOptions | None = None) -> SweepR
         _figure(figure_path, sweep, critical, base)
     return SweepResult(spec, sweep.rows(), critical, windows, resolution, sweep.summary_path, figure_path,
                        sweep.cautions(resolution), time.time() - sweep.started)
+
+
+def refuse_invalid_points(path, text, spec, points) -> None:
+    """Raise the case error of the first listed point whose case does not validate (before anything runs).
+
+    When the offending key is a swept key the error names it as the sweep's (``sweep."magnetic.Rm" =
+    -1``, with its place in the list); otherwise (an error of the file or of ``--set``, or of a
+    combination of values) the point's own error is raised, with the point named when it is not the
+    same for every point.
+    """
+    for p in points:
+        if p.case is not None:
+            continue
+        try:
+            load_case(path, p.overrides, text=text)
+        except CaseError as exc:
+            if exc.key in p.values:
+                value = p.values[exc.key]
+                listed = spec.values[spec.keys.index(exc.key)]
+                place = next((i for i, v in enumerate(listed) if v == value and type(v) is type(value)), None)
+                where = f" (value {place + 1} of {len(listed)})" if place is not None else ""
+                raise CaseError(str(path), f'sweep."{exc.key}"', value,
+                                f"{exc.expected}: every swept value must be a valid {exc.key}{where}") from None
+            if all(q.case is None for q in points):
+                raise
+            raise CaseError(str(path), "sweep", p.label(),
+                            f"a valid case at every point; at {p.label()}: {exc}") from None
+        except KindynError as exc:
+            raise CaseError(str(path), "sweep", p.label(),
+                            f"a valid case at every point; at {p.label()}: {exc}") from None
+        raise CaseError(str(path), "sweep", p.label(), f"a valid case at every point: {p.error}")
 
 
 def _figure(path, sweep, critical, base) -> None:
