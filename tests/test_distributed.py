@@ -201,3 +201,46 @@ def test_a_flow_that_raises_on_one_process_ends_every_process_with_one_message(t
     lines = [line for line in done.stderr.splitlines() if "fails on one block" in line]
     assert len(lines) == 1, done.stderr
     assert "Traceback" not in done.stderr
+
+
+TESTFIELD_RUNNER = textwrap.dedent("""
+    import sys
+    import numpy as np
+    from kindyn.case.load import load_case
+    from kindyn.testfield.calibration import calibrate
+
+    result = calibrate(load_case(sys.argv[1]))
+    import os
+    if os.environ.get("PMI_RANK", "0") == "0":
+        np.savez(sys.argv[2], converged=result.converged, **{k: np.asarray(v) for k, v in result.tensors.items()})
+""")
+TESTFIELD_CASE = """
+[domain]
+grid = [12, 12, 12]
+[flow]
+type = "abc"
+[magnetic]
+Rm = 2.0
+[testfield]
+method = "time"
+modes = [1]
+tolerance = 1e-3
+max_time = 120.0
+reset_interval = 20.0
+"""
+
+
+def test_test_field_coefficients_on_two_processes_equal_serial(tmp_path):
+    script = tmp_path / "testfield_runner.py"
+    script.write_text(TESTFIELD_RUNNER)
+    case = tmp_path / "tf.toml"
+    case.write_text(TESTFIELD_CASE)
+    results = []
+    for processes, name in ((1, "serial.npz"), (2, "parallel.npz")):
+        done = _launch(processes, script, case, tmp_path / name)
+        assert done.returncode == 0, done.stderr[-3000:]
+        results.append(np.load(tmp_path / name))
+    serial, parallel = results
+    assert bool(serial["converged"]) and bool(parallel["converged"])
+    for key in ("alpha", "alpha_soca", "alpha_K", "eta_K", "alpha_K_soca", "eta_K_soca"):
+        np.testing.assert_allclose(parallel[key], serial[key], rtol=0, atol=1e-10)
