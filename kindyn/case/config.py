@@ -15,6 +15,7 @@ from __future__ import annotations
 
 import contextlib
 import dataclasses
+import stat
 import tomllib
 import typing
 from collections.abc import Mapping
@@ -79,6 +80,9 @@ def parse_override(text: str, file: str = "--set") -> tuple[list[str], object]:
         value = tomllib.loads(f"v = {raw.strip()}")["v"]
     except tomllib.TOMLDecodeError:
         value = raw.strip()
+    except (ValueError, RecursionError, MemoryError) as exc:  # e.g. an integer of 100000 digits
+        raise CaseError(file, key.strip(), raw.strip(), f"a TOML value ({_parse_problem(exc)})") from None
+    check_depth(value, file, key.strip())
     return parts, value
 
 
@@ -86,7 +90,7 @@ def _key_path(key: str) -> list[str] | None:
     """The parts of a TOML dotted key (``sweep."magnetic.Rm"`` -> ``["sweep", "magnetic.Rm"]``)."""
     try:
         node = tomllib.loads(f"{key} = 0")
-    except tomllib.TOMLDecodeError:
+    except (ValueError, RecursionError):  # tomllib.TOMLDecodeError is a ValueError
         return None
     parts = []
     while isinstance(node, dict) and len(node) == 1:
@@ -114,18 +118,71 @@ def apply_overrides(data: dict, overrides) -> dict:
     return data
 
 
+MAX_CASE_BYTES = 4 * 2**20  # a case file is a page of keys; anything this large is not one
+
+
 def read_toml(path) -> tuple[str, dict]:
+    """``(text, data)`` of the case file ``path``: a regular UTF-8 file of at most
+    :data:`MAX_CASE_BYTES` (never a FIFO or a device, which could block or never end)."""
     path = Path(path)
     try:
-        text = path.read_text(encoding="utf-8")
+        info = path.stat()
+        if not stat.S_ISREG(info.st_mode):
+            raise CaseError(str(path), "", MISSING, "a case file (this is a folder or a special file)")
+        if info.st_size > MAX_CASE_BYTES:
+            raise CaseError(str(path), "", MISSING, f"a case file of at most {MAX_CASE_BYTES // 2**20} MiB "
+                            f"(this one has {info.st_size / 2**20:.3g} MiB)")
+        with open(path, encoding="utf-8") as stream:
+            text = stream.read(MAX_CASE_BYTES + 1)
     except FileNotFoundError:
         raise CaseError(str(path), "", MISSING, "an existing case file (not found)") from None
-    except (OSError, UnicodeDecodeError) as exc:
+    except (OSError, UnicodeDecodeError, ValueError) as exc:
         raise CaseError(str(path), "", MISSING, f"a readable UTF-8 TOML file ({exc})") from None
+    return text, parse_toml(text, str(path))
+
+
+MAX_DEPTH = 8  # tables and arrays nested inside a section: the deepest a case needs is 3
+
+
+def _parse_problem(exc: BaseException) -> str:
+    if isinstance(exc, RecursionError):
+        return "nested too deeply"
+    if isinstance(exc, MemoryError):
+        return "too large to read"
+    if "integer string conversion" in str(exc):  # Python's limit on the digits of an integer
+        return "an integer of more than 4300 digits"
+    return str(exc)
+
+
+def parse_toml(text: str, file: str) -> dict:
+    """The TOML ``text`` of ``file`` parsed, and checked for absurd nesting (see :func:`check_depth`).
+
+    Every failure of the parser (syntax, an integer of thousands of digits, nesting deep enough to
+    exhaust the interpreter's stack) is a :class:`CaseError`.
+    """
     try:
-        return text, tomllib.loads(text)
-    except tomllib.TOMLDecodeError as exc:
-        raise CaseError(str(path), "", MISSING, f"valid TOML ({exc})") from None
+        data = tomllib.loads(text)
+    except (ValueError, RecursionError, MemoryError) as exc:  # tomllib.TOMLDecodeError is a ValueError
+        raise CaseError(file, "", MISSING, f"valid TOML ({_parse_problem(exc)})") from None
+    check_depth(data, file)
+    return data
+
+
+def check_depth(value, file: str, key: str = "", limit: int = MAX_DEPTH) -> None:
+    """Refuse tables or arrays nested more than ``limit`` levels below ``key`` (iteratively, so that
+    a deep value cannot exhaust the stack here or in a later ``repr``)."""
+    stack = [(value, key, 0)]
+    while stack:
+        node, where, depth = stack.pop()
+        if isinstance(node, dict):
+            items = [(v, f"{where}.{k}" if where else str(k)) for k, v in node.items()]
+        elif isinstance(node, list):
+            items = [(v, f"{where}[{i}]") for i, v in enumerate(node)]
+        else:
+            continue
+        if depth > limit + (1 if not key else 0):
+            raise CaseError(file, where or key, "[...]", f"tables or arrays nested at most {limit} deep")
+        stack.extend((v, w, depth + 1) for v, w in items)
 
 
 def read_config(path, overrides=(), text: str | None = None) -> CaseConfig:
@@ -133,7 +190,7 @@ def read_config(path, overrides=(), text: str | None = None) -> CaseConfig:
     if text is None:
         text, data = read_toml(path)
     else:
-        data = tomllib.loads(text)
+        data = parse_toml(text, str(path))
     data = apply_overrides(data, overrides)
     return validate_config(data, str(path), text, tuple(overrides))
 
@@ -189,7 +246,7 @@ def validate_flow_table(raw, file: str) -> tuple[str, dict]:
         raise CaseError(file, "flow", MISSING, "a [flow] section with a type")
     params = dict(raw)
     flow_type = params.pop("type", MISSING)
-    if flow_type not in FLOW_TYPES:
+    if not isinstance(flow_type, str) or flow_type not in FLOW_TYPES:
         raise CaseError(file, "flow.type", flow_type, "one of " + ", ".join(f'"{t}"' for t in FLOW_TYPES))
     cls = FLOW_TYPES[flow_type]
     if not hasattr(cls, "from_case"):

@@ -18,6 +18,8 @@ from pathlib import Path
 from kindyn.box import Box
 from kindyn.case.config import (CaseConfig, apply_overrides, check_one_diffusivity, naming_overrides, parse_override,
                                 read_config, read_toml, validate_config)
+from kindyn.case.budget import check_budget, current_purpose
+from kindyn.case.ranges import check_band, check_decay, check_flow_scale
 from kindyn.case.schema import MagneticConfig, validate_section
 from kindyn.errors import CaseError, ParameterError
 
@@ -79,9 +81,14 @@ def build_case(config: CaseConfig) -> Case:
     """The box, the flow and the diffusivity of a validated case (errors name file, key, value)."""
     file = config.path
     with naming_overrides(file, config.overrides):
+        check_budget(config)  # memory, cores and sizes: before anything is allocated
         box = Box(config.domain.lengths, config.domain.grid)
+        check_band(box, file)
         flow = build_flow(config.flow_type, config.flow_params, box, file)
+        check_budget(config, flow)  # the estimate again, now that the flow's shape is known
+        check_flow_scale(box, flow, file)
         eta, Rm = resolve_diffusivity(config.magnetic, flow, file)
+        check_decay(config, box, flow, eta, Rm, current_purpose()[0])
     values = {f.name: getattr(config, f.name) for f in fields(CaseConfig)}
     return Case(**values, box=box, flow=flow, eta=eta, Rm=Rm)
 
@@ -95,12 +102,26 @@ def build_flow(flow_type: str, params: dict, box: Box, file: str):
     except ParameterError as exc:
         section = "domain" if exc.key == "grid" else "flow"
         raise CaseError(file, f"{section}.{exc.key}", exc.value, exc.expected) from None
+    except (ArithmeticError, RecursionError) as exc:  # overflow, division by zero in a flow's setup
+        raise CaseError(file, "flow", flow_type, f"parameters the {flow_type} flow can compute with "
+                        f"({type(exc).__name__}: {exc})") from None
 
 
 def resolve_diffusivity(magnetic: MagneticConfig, flow, file: str) -> tuple[float, float]:
-    """(eta, Rm) from the one given and the flow's ``U/k_f`` (``Rm = U/(eta k_f)``)."""
+    """(eta, Rm) from the one given and the flow's ``U/k_f`` (``Rm = U/(eta k_f)``).
+
+    The Rm rule (:mod:`kindyn.flows.scales`): built-in flows declare U and k_f; a user flow takes
+    them from the case (or its velocity file) and must declare both when ``magnetic.Rm`` is given;
+    with ``magnetic.eta`` the undeclared ones are measured (the flow's ``scale_rule`` says which).
+    """
+    from kindyn.flows.scales import require_declared
+
     check_one_diffusivity(magnetic, file)
     eta, Rm = magnetic.eta, magnetic.Rm
+    try:
+        require_declared(flow, Rm is not None)
+    except ParameterError as exc:
+        raise CaseError(file, f"flow.{exc.key}", exc.value, exc.expected) from None
     scale = flow.speed / flow.wavenumber
     if scale <= 0 or not math.isfinite(scale):
         raise CaseError(file, "flow", "U = 0", "a flow with non-zero speed (Rm is undefined)")

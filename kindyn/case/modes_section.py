@@ -18,25 +18,27 @@ def _planar_grid(value) -> tuple[int, int]:
     nx, ny = _two_counts(value)
     if min(nx, ny) < 4:
         raise ValueError("a list of two whole numbers [nx, ny], each >= 4")
-    return nx, ny
+    return nx, ny  # (its memory is checked by the loader, kindyn.case.budget)
 
 
 _two_counts = schema.list_of(schema.positive_integer, "whole numbers [nx, ny], each >= 4", length=2)
 _wavenumber_list = schema.list_of(schema.non_negative, "vertical wavenumbers >= 0 (numbers or multiples of pi)")
 
 
-def _non_negative_integer(value) -> int:
-    v = schema.integer(value)
-    if v < 0:
-        raise ValueError("a whole number >= 0")
-    return v
+# A Krylov solve finds a few leading eigenvalues; its basis holds at least count + 3 vectors, each
+# as large as the field, and costs one propagation per vector (the loader also keeps count below the
+# number of unknowns of the grid).
+MAX_COUNT = 1000
+MAX_KRYLOV_DIMENSION = 10_000
+MAX_RESTARTS = 1_000_000
 
 
 @dataclass(frozen=True, kw_only=True)
 class ModesConfig(SectionConfig):
     """``[modes]``: what the eigen-solver computes and how."""
 
-    count: int = setting(schema.positive_integer, 4, "number of leading eigenvalues (largest growth rates) to find")
+    count: int = setting(schema.bounded_integer(1, MAX_COUNT), 4,
+                         "number of leading eigenvalues (largest growth rates) to find")
     method: str = setting(
         schema.choice(*METHODS), "auto",
         "box: solve on the 3-D grid; planar: B = b(x, y) exp(i kz z) on a 2-D grid (z-independent "
@@ -64,12 +66,12 @@ class ModesConfig(SectionConfig):
         "arnoldi: basis grown one propagation at a time, stops when converged (ARPACK takes over at "
         "krylov_dimension); arpack: implicitly restarted Arnoldi (scipy.sparse.linalg.eigs) throughout")
     krylov_dimension: int | None = setting(
-        schema.positive_integer, None,
+        schema.bounded_integer(1, MAX_KRYLOV_DIMENSION), None,
         "largest Arnoldi basis (default 120, capped at 512 MB) for solver = arnoldi; "
         "ARPACK's ncv (default max(2 count + 3, 40)) for solver = arpack")
-    max_restarts: int = setting(schema.positive_integer, 1000, "ARPACK restarts before giving up")
-    seed: int = setting(schema.integer, 1, "seed of the random start vector")
-    fields: int | None = setting(_non_negative_integer, None,
+    max_restarts: int = setting(schema.bounded_integer(1, MAX_RESTARTS), 1000, "ARPACK restarts before giving up")
+    seed: int = setting(schema.seed, 1, "seed of the random start vector")
+    fields: int | None = setting(schema.bounded_integer(0, MAX_COUNT), None,
                                  "number of eigenfields written to netCDF (default: count)")
 
 

@@ -49,6 +49,8 @@ OPTION_DEFAULTS = {
     "refine_width": 0.005,
 }
 SIGNIFICANT_DIGITS = 12
+MAX_POINTS = 10_000  # points of a whole sweep (each is at least one run)
+MAX_REFINE_RUNS = 100  # bisections beyond ~50 cannot narrow a bracket of doubles further
 
 
 @dataclass(frozen=True)
@@ -105,6 +107,8 @@ def validate_sweep(raw, file: str, methods: tuple[str, ...] | None = None) -> Sw
     """
     if raw is None:
         return NO_SWEEP
+    if not isinstance(raw, dict):
+        raise CaseError(file, "sweep", raw, "[sweep] to be a table of swept keys and options")
     options = dict(OPTION_DEFAULTS)
     keys, values, log_keys = [], [], set()
     for key, value in raw.items():
@@ -126,11 +130,15 @@ def validate_sweep(raw, file: str, methods: tuple[str, ...] | None = None) -> Sw
     _check_option(options, "combine", schema.choice(*COMBINATIONS), file)
     _check_option(options, "method", schema.string if methods is None else schema.choice(*methods), file)
     _check_option(options, "refine", schema.boolean, file)
-    _check_option(options, "refine_runs", schema.positive_integer, file)
+    _check_option(options, "refine_runs", schema.bounded_integer(1, MAX_REFINE_RUNS), file)
     _check_option(options, "refine_width", schema.positive, file)
     if options["combine"] == "zip" and len({len(v) for v in values}) > 1:
         raise CaseError(file, "sweep.combine", "zip", "lists of equal length for a zipped sweep (lengths "
                         + ", ".join(f"{k}: {len(v)}" for k, v in zip(keys, values)) + ")")
+    total = len(values[0]) if options["combine"] == "zip" else math.prod(len(v) for v in values)
+    if total > MAX_POINTS:
+        raise CaseError(file, "sweep", f"{total} points", f"at most {MAX_POINTS} points in one sweep "
+                        "(the product of the list lengths; split the sweep)")
     if options["combine"] == "product":
         for key, vals in zip(keys, values):
             _require_distinct(vals, file, f'sweep."{key}"', list(vals))
@@ -181,13 +189,34 @@ def swept_values(value, file: str, where: str) -> tuple[tuple, bool]:
     if isinstance(value, list):
         if not value:
             raise CaseError(file, where, value, "a non-empty list of values")
-        if any(isinstance(v, dict) for v in value):
-            raise CaseError(file, where, value, "a list of plain values (numbers, strings, lists)")
+        if len(value) > MAX_POINTS:
+            raise CaseError(file, where, f"a list of {len(value)} values", f"at most {MAX_POINTS} values")
+        for v in value:
+            problem = _plain_problem(v)
+            if problem:
+                raise CaseError(file, where, v, f"a list of plain values (finite numbers, strings, lists of them): "
+                                f"{problem}")
         return tuple(value), False
     if isinstance(value, dict):
         return _range_values(value, file, where)
     raise CaseError(file, where, value, "a list of values, or a range { start = ..., stop = ..., count = ..., "
                     "spacing = \"linear\" or \"log\" }")
+
+
+def _plain_problem(value, depth: int = 0) -> str:
+    """Why ``value`` cannot be a swept value ('' if it can): it must be written back as a TOML
+    override (``--set key=value``), so NaN, infinities, tables and dates are refused."""
+    if isinstance(value, bool) or isinstance(value, str):
+        return ""
+    if isinstance(value, int):
+        return "" if abs(value) <= schema.MAX_INTEGER else "a whole number below 2**63"
+    if isinstance(value, float):
+        return "" if math.isfinite(value) else "a finite number (not nan or inf)"
+    if isinstance(value, list):
+        if depth >= 2:
+            return "lists nested at most two deep"
+        return next((p for p in (_plain_problem(v, depth + 1) for v in value) if p), "")
+    return f"not a {type(value).__name__}"
 
 
 def _range_values(table: dict, file: str, where: str) -> tuple[tuple, bool]:
@@ -204,7 +233,7 @@ def _range_values(table: dict, file: str, where: str) -> tuple[tuple, bool]:
     except ValueError as exc:
         raise CaseError(file, f"{where}.start/stop", [table["start"], table["stop"]], str(exc)) from None
     try:
-        count = schema.positive_integer(table["count"])
+        count = schema.bounded_integer(1, MAX_POINTS)(table["count"])
     except ValueError as exc:
         raise CaseError(file, f"{where}.count", table["count"], str(exc)) from None
     spacing = table.get("spacing", "linear")

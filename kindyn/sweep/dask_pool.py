@@ -11,15 +11,77 @@ or give ``--threads-per-run T`` and ``--nthreads 1`` workers with T cores each: 
 how many cores a run uses. See ``scripts/cluster/`` for Slurm and PBS examples.
 
 The cluster is not ours: the client is closed at the end, the scheduler and workers keep running.
+
+Before any connection the address is checked (:func:`check_scheduler_address`): ``host:port`` or
+``PROTOCOL://host:port`` (tcp, tls, ws, wss, ucx; a port from 1 to 65535), ``inproc://...``, or an
+existing scheduler file (a JSON object whose ``address`` is such an address). A scheduler that does
+not answer within :data:`CONNECT_TIMEOUT` seconds is one :class:`~kindyn.errors.ParameterError`
+line (exit code 2), never a hang. ``--threads-per-run`` is checked against the cores of the
+workers once connected (the least of them: a point may run on any worker).
 """
 
 from __future__ import annotations
 
+import json
+import re
+import stat
 import uuid
 from pathlib import Path
 
 from kindyn.errors import ParameterError
 from kindyn.sweep.execution import failed_record, run_point
+
+CONNECT_TIMEOUT = 30.0
+PROTOCOLS = ("tcp", "tls", "ws", "wss", "ucx", "inproc")
+_HOST_PORT = re.compile(r"^(?:\[[0-9A-Fa-f:.]+\]|[A-Za-z0-9._-]+):(\d{1,5})$")
+MAX_SCHEDULER_FILE = 2**20
+EXPECTED = ("the address of a running Dask scheduler (tcp://host:8786, host:8786) or the path of its "
+            "scheduler file (dask scheduler --scheduler-file FILE)")
+
+
+def _check_address(address: str, shown: str) -> str:
+    """``address`` if it is a scheduler address (see module docstring), else a ParameterError."""
+    if not isinstance(address, str) or not address or len(address) > 1000 or any(c.isspace() for c in address):
+        raise ParameterError("--scheduler", shown, EXPECTED)
+    protocol, sep, rest = address.partition("://")
+    if not sep:
+        protocol, rest = "tcp", address
+    if protocol not in PROTOCOLS:
+        raise ParameterError("--scheduler", shown, f"{EXPECTED}; protocols: " + ", ".join(PROTOCOLS))
+    if protocol == "inproc":
+        if not rest:
+            raise ParameterError("--scheduler", shown, EXPECTED)
+        return address
+    match = _HOST_PORT.match(rest)
+    if not match or not 1 <= int(match.group(1)) <= 65535:
+        raise ParameterError("--scheduler", shown, f"{EXPECTED}: host:port with a port from 1 to 65535")
+    return address
+
+
+def check_scheduler_address(address: str) -> dict:
+    """``{"address": ...}`` or ``{"scheduler_file": ...}`` for :class:`distributed.Client`, after
+    checking ``address`` (see module docstring); raises ParameterError naming ``--scheduler``."""
+    path = Path(address) if isinstance(address, str) and address and "\x00" not in address else None
+    try:
+        info = path.stat() if path is not None and "://" not in address else None
+    except (OSError, ValueError):
+        info = None
+    if info is not None:
+        if not stat.S_ISREG(info.st_mode) or info.st_size > MAX_SCHEDULER_FILE:
+            raise ParameterError("--scheduler", address, "a scheduler file (a small JSON file), not a folder or device")
+        try:
+            content = json.loads(path.read_text(encoding="utf-8"))
+        except (OSError, UnicodeDecodeError, ValueError, RecursionError):
+            content = None
+        if not isinstance(content, dict) or not isinstance(content.get("address"), str):
+            raise ParameterError("--scheduler", address,
+                                 'a scheduler file: a JSON object with the scheduler\'s "address" '
+                                 "(as written by dask scheduler --scheduler-file)")
+        _check_address(content["address"], f"{address} (address {content['address']})")
+        return {"scheduler_file": str(path)}
+    if isinstance(address, str) and "://" not in address and ("/" in address or address.endswith(".json")):
+        raise ParameterError("--scheduler", address, f"{EXPECTED} (no such file)")
+    return {"address": _check_address(address, address)}
 
 
 def _import_distributed():
@@ -33,20 +95,38 @@ def _import_distributed():
 class DaskPool:
     """Points as Dask tasks on the cluster behind ``address`` (see module docstring)."""
 
-    def __init__(self, address: str, connect_timeout: float = 30.0):
+    def __init__(self, address: str, connect_timeout: float | None = None):
         self.address = address
-        self.connect_timeout = connect_timeout
+        self.connect_timeout = CONNECT_TIMEOUT if connect_timeout is None else connect_timeout
         self.parallelism = 1  # learnt from the cluster (worker threads) once connected
 
     def _client(self, distributed):
+        target = check_scheduler_address(self.address)
         kwargs = {"timeout": self.connect_timeout, "set_as_default": False}
         try:
-            if Path(self.address).is_file():
-                return distributed.Client(scheduler_file=self.address, **kwargs)
-            return distributed.Client(self.address, **kwargs)
-        except (OSError, TimeoutError) as exc:
+            return distributed.Client(**target, **kwargs)
+        except Exception as exc:  # noqa: BLE001 -- OSError, TimeoutError, a refused handshake: one line
+            reason = str(exc).strip().splitlines()[0] if str(exc).strip() else type(exc).__name__
             raise ParameterError("--scheduler", self.address,
-                                 f"the address of a running Dask scheduler or its scheduler file ({exc})") from None
+                                 f"a running Dask scheduler that answers within {self.connect_timeout:g} s "
+                                 f"({reason})") from None
+
+    @staticmethod
+    def check_threads(client, tasks) -> None:
+        """Every task's threads at most the cores of the smallest worker (see module docstring)."""
+        from kindyn.case.budget import usable_cores
+
+        threads = max((int(task.get("threads") or 1) for task in tasks), default=1)
+        if threads <= 1:
+            return
+        try:
+            cores = client.run(usable_cores)
+        except Exception:  # noqa: BLE001 -- workers that cannot say: Dask's own limits apply
+            return
+        if cores and threads > min(cores.values()):
+            raise ParameterError("--threads-per-run", threads,
+                                 f"at most the cores of the cluster's smallest worker ({min(cores.values())}); "
+                                 "more threads than cores only slow each run down")
 
     def describe(self) -> str:
         return f"on the Dask scheduler {self.address}"
@@ -58,6 +138,7 @@ class DaskPool:
         if not tasks:
             return
         with self._client(distributed) as client:
+            self.check_threads(client, tasks)
             self.parallelism = max(1, sum(client.nthreads().values()))
             futures = {}
             for task in tasks:
