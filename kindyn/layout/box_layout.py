@@ -17,7 +17,7 @@ from functools import cached_property
 
 import numpy as np
 
-from kindyn.box import Box, fft_mode_numbers, kept_by_two_thirds, kept_index_ranges
+from kindyn.box import Box, kept_by_two_thirds, kept_index_ranges
 from kindyn.layout.spectral import band_support, packed_entries, velocity_components
 from kindyn.transforms import TransformSettings, make_engine
 
@@ -90,10 +90,8 @@ class BoxLayout:
 
     @cached_property
     def mode_numbers(self) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
-        """Local integer mode numbers (broadcastable)."""
-        nx, ny, nz = self.grid
-        mx, my = fft_mode_numbers(nx), fft_mode_numbers(ny)
-        return (mx[:, None, None], my[None, :, None], np.arange(nz // 2 + 1)[None, None, :])
+        """Local integer mode numbers (broadcastable; here those of the whole half grid of the box)."""
+        return self.box.mode_numbers
 
     @cached_property
     def wavenumbers(self) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
@@ -113,12 +111,8 @@ class BoxLayout:
 
     @cached_property
     def parseval_weights(self) -> np.ndarray:
-        nz = self.grid[2]
-        w = np.full(nz // 2 + 1, 2.0)
-        w[0] = 1.0
-        if nz % 2 == 0:
-            w[-1] = 1.0
-        return np.broadcast_to(w[None, None, :], self.spectral_shape)
+        """Local Parseval weights (here those of the whole half grid of the box)."""
+        return self.box.parseval_weights
 
     @cached_property
     def band(self):
