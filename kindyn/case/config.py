@@ -24,6 +24,7 @@ from pathlib import Path
 from types import MappingProxyType
 
 from kindyn.case import schema
+from kindyn.case.cluster_section import ClusterConfig
 from kindyn.case.modes_section import ModesConfig
 from kindyn.case.schema import DomainConfig, MagneticConfig, NumericsConfig, OutputConfig, RunConfig
 from kindyn.case.sections import FREEFORM_SECTIONS, SECTIONS
@@ -51,6 +52,7 @@ class CaseConfig:
     output: OutputConfig
     testfield: TestfieldConfig
     modes: ModesConfig
+    cluster: ClusterConfig
     sweep: SweepSpec
     flow_type: str
     flow_params: dict

@@ -55,6 +55,7 @@ class Case(CaseConfig):
         """Hash of :attr:`resolved` without the keys of :data:`NOT_IN_IDENTITY`: two cases with the
         same physics and numerics share it (checkpoints and sweep points are found by it)."""
         data = self.resolved
+        data.pop("cluster", None)  # where points run (empty, added after the first fingerprints)
         for section, key in NOT_IN_IDENTITY:
             data.get(section, {}).pop(key, None)
         text = json.dumps(data, sort_keys=True)

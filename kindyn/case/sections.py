@@ -11,6 +11,7 @@ sweeps are defined here in the case package, and those packages import them, nev
 
 from __future__ import annotations
 
+from kindyn.case.cluster_section import ClusterConfig
 from kindyn.case.modes_section import ModesConfig
 from kindyn.case.schema import DomainConfig, MagneticConfig, NumericsConfig, OutputConfig, RunConfig, SectionConfig
 from kindyn.case.sweep_section import validate_sweep
@@ -24,5 +25,6 @@ SECTIONS: dict[str, type[SectionConfig]] = {
     "output": OutputConfig,
     "testfield": TestfieldConfig,
     "modes": ModesConfig,
+    "cluster": ClusterConfig,
 }
 FREEFORM_SECTIONS: dict = {"sweep": validate_sweep}

@@ -1,20 +1,27 @@
 """``kindyn sweep CASE.toml``: growth rate at every point of a sweep, critical values, dynamo windows.
 
 Points run in local worker processes (default: as many as fit, workers x threads-per-run <= cores)
-or on a Dask distributed cluster (``--scheduler ADDRESS``). Re-running the same command reuses
+or on a Dask distributed cluster (``--scheduler ADDRESS``), or on Dask workers submitted as Slurm or
+PBS jobs (``--cluster slurm``, the case's ``[cluster]`` section, :mod:`kindyn.sweep.jobqueue`). Re-running the same command reuses
 every finished point (identified by the content of its resolved case) and runs the rest.
 
 The results (critical values with their uncertainties, dynamo windows, resolution studies, cautions,
 files written) go to stdout; per-point progress to stderr. A sign change whose sign is not certain
 at one end of its bracket (``|gamma| <= error``) is printed as "may turn positive/negative" with
 the bracket's growth rates, and listed among the cautions.
+
+The figure (``NAME-sweep.<format>``, the case's ``[output]`` figure keys or ``--figure-format``,
+``--figure-size``, ``--figure-dpi``) is drawn here from the sweep's rows (:func:`draw_sweep_figure`):
+growth rate versus the critical key, the dynamo windows shaded per line (grid), a zoom on every sign
+change. The figure options never enter the points' cases, so changing them reruns nothing.
 """
 
 from __future__ import annotations
 
 from pathlib import Path
 
-from kindyn.commands.common import Reporter, add_case_arguments, add_quiet_argument, clean_number, with_error
+from kindyn.commands.common import (Reporter, add_case_arguments, add_figure_arguments, add_quiet_argument, clean_number,
+                                    command_environment, figure_overrides, with_error)
 from kindyn.errors import ParameterError
 
 HELP = "run a parameter sweep (e.g. growth rate versus Rm): dynamo windows, resolution studies, Dask clusters"
@@ -28,12 +35,52 @@ def add_arguments(parser) -> None:
                         help="FFT threads of each run (default: the case's numerics.threads)")
     parser.add_argument("--scheduler", default=None, metavar="ADDRESS",
                         help="run on a Dask distributed cluster: scheduler address (tcp://host:8786) or scheduler file")
+    parser.add_argument("--cluster", default=None, choices=("slurm", "pbs"),
+                        help="run the points on Dask workers submitted as Slurm or PBS jobs (the case's [cluster] "
+                             "section; needs the cluster extra)")
     parser.add_argument("--refine", action="store_true",
                         help="refine every sign change of gamma by bracketing runs ([sweep] refine_runs, refine_width)")
     parser.add_argument("--grids", default=None, metavar="LIST",
                         help='resolution study: also sweep domain.grid over e.g. "16,24,32" or "16x16x32,24x24x48"')
     parser.add_argument("--no-figure", action="store_true", help="do not write the sweep figure")
     add_quiet_argument(parser)
+    add_figure_arguments(parser)
+
+
+def figure_settings(path, overrides=(), figure_options=()) -> tuple[object, str]:
+    """``(output section, flow type)`` of the sweep's case file with the overrides (and the figure
+    options, which only the figure sees)."""
+    from kindyn.case.load import apply_overrides, read_toml
+    from kindyn.case.schema import OutputConfig, build_section
+
+    _, data = read_toml(path)
+    data = apply_overrides(apply_overrides(data, overrides), figure_options)
+    output = build_section(OutputConfig, data.get("output", {}), "output", str(path))
+    flow = data.get("flow", {})
+    return output, str(flow.get("type", "")) if isinstance(flow, dict) else ""
+
+
+def draw_sweep_figure(result, output, flow_type: str, path=None):
+    """Draw the figure of a finished sweep (``result``: a :class:`kindyn.sweep.driver.SweepResult`)
+    in the style of ``output``; returns its path."""
+    from kindyn.output.figures import FigureStyle
+    from kindyn.output.figures_sweep import curves_from_rows, key_label, sweep_figure
+
+    style = FigureStyle.from_output(output)
+    stem = result.summary_path.stem
+    name = stem[: -len("-sweep")] if stem.endswith("-sweep") else stem
+    path = path or result.summary_path.with_name(f"{name}-sweep.{style.format}")
+    spec, key = result.spec, result.spec.critical
+    curves = curves_from_rows(result.rows, key)
+    if key:
+        ticks, xlabel = None, key_label(key)
+    else:
+        ticks = ["\n".join(_value_text(v) for v in r["values"].values()) for r in result.rows]
+        xlabel = ", ".join(spec.keys)
+    title = f"{name}: {flow_type} flow, growth rate versus {key or xlabel}"
+    sweep_figure(path, curves, result.critical, xlabel, title, log_x=bool(key and key in spec.log_spaced),
+                 tick_labels=ticks, windows=result.windows, style=style)
+    return path
 
 
 def execute(args) -> int:
@@ -45,11 +92,17 @@ def execute(args) -> int:
         raise ParameterError("--threads-per-run", args.threads_per_run, "a whole number >= 1")
     if args.workers is not None and args.scheduler:
         raise ParameterError("--workers", args.workers, "no --workers with --scheduler (the cluster has its workers)")
+    if args.cluster and (args.scheduler or args.workers is not None):
+        raise ParameterError("--cluster", args.cluster, "no --scheduler or --workers with --cluster (it starts both)")
     options = SweepOptions(out=Path(args.out), workers=args.workers, threads=args.threads_per_run,
-                           scheduler=args.scheduler, refine=True if args.refine else None,
+                           scheduler=args.scheduler, cluster=args.cluster, refine=True if args.refine else None,
                            grids=parse_grids(args.grids) if args.grids else None,
-                           figure=False if args.no_figure else None, say=report.progress_callback)
-    result = run_sweep(args.case, args.overrides, options)
+                           figure=False, say=report.progress_callback)
+    with command_environment(report.command_line):  # the summary and every point record the command
+        result = run_sweep(args.case, args.overrides, options)
+    output, flow_type = figure_settings(args.case, args.overrides, figure_overrides(args))
+    if output.figure and not args.no_figure:
+        result.figure_path = draw_sweep_figure(result, output, flow_type)
     for line in report_lines(result, cautions=False):
         report.result(line)
     for caution in all_cautions(result):

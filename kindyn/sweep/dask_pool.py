@@ -8,7 +8,8 @@ folder (a shared file system), because each worker writes its own point files. T
 with the task, so workers need not see the case file (a flow read from a file must be visible,
 though). Start workers with one thread per run (``dask worker ADDRESS --nthreads 1 --nworkers N``)
 or give ``--threads-per-run T`` and ``--nthreads 1`` workers with T cores each: Dask does not know
-how many cores a run uses. See ``scripts/cluster/`` for Slurm and PBS examples.
+how many cores a run uses. ``kindyn sweep CASE.toml --cluster slurm`` starts the scheduler itself
+and its workers as batch jobs (:mod:`kindyn.sweep.jobqueue`), through :meth:`DaskPool.run_on`.
 
 The cluster is not ours: the client is closed at the end, the scheduler and workers keep running.
 
@@ -25,13 +26,16 @@ from __future__ import annotations
 import json
 import re
 import stat
+import time
 import uuid
 from pathlib import Path
 
 from kindyn.errors import ParameterError
-from kindyn.sweep.execution import failed_record, run_point
+from kindyn.sweep.execution import failed_record, read_record, run_point
 
 CONNECT_TIMEOUT = 30.0
+POLL_SECONDS = 0.25  # how often a run checks its futures and its workers
+RESULT_TIMEOUT = 20.0  # fetching a finished point's record from its worker
 PROTOCOLS = ("tcp", "tls", "ws", "wss", "ucx", "inproc")
 _HOST_PORT = re.compile(r"^(?:\[[0-9A-Fa-f:.]+\]|[A-Za-z0-9._-]+):(\d{1,5})$")
 MAX_SCHEDULER_FILE = 2**20
@@ -138,17 +142,55 @@ class DaskPool:
         if not tasks:
             return
         with self._client(distributed) as client:
-            self.check_threads(client, tasks)
-            self.parallelism = max(1, sum(client.nthreads().values()))
-            futures = {}
-            for task in tasks:
-                key = f"kindyn-point-{task['identity']}-{uuid.uuid4().hex[:8]}"
-                future = client.submit(run_point, task, pure=False, key=key)
-                futures[future] = task
-            for future in distributed.as_completed(list(futures), loop=client.loop):
+            self.run_on(client, tasks, on_result)
+
+    @staticmethod
+    def fetch(future, task) -> dict:
+        """The record of a finished task. Its result lives on the worker, which may be gone (its job
+        cancelled) before it is fetched: then the record the worker wrote next to the point is used."""
+        try:
+            return future.result(timeout=RESULT_TIMEOUT)
+        except Exception as exc:  # noqa: BLE001 -- e.g. KilledWorker, a vanished worker: record it, go on
+            record = read_record(task["out_dir"], task["identity"])
+            if record is not None:
+                return record
+            return failed_record(task, f"{type(exc).__name__} on the Dask cluster: {exc}".strip())
+
+    def run_on(self, client, tasks, on_result, lost_timeout: float | None = None) -> None:
+        """Run ``tasks`` through ``client``. With ``lost_timeout``, a cluster without any worker for
+        that many seconds (its jobs cancelled or past their walltime) ends the run: the points still
+        unfinished get a failed record saying so (their files are not written, so the same command
+        runs them again), instead of waiting for workers that will not come."""
+        self.check_threads(client, tasks)
+        self.parallelism = max(1, sum(client.nthreads().values()))
+        futures = {}
+        for task in tasks:
+            key = f"kindyn-point-{task['identity']}-{uuid.uuid4().hex[:8]}"
+            future = client.submit(run_point, task, pure=False, key=key)
+            futures[future] = task
+        pending, no_worker_since = set(futures), None
+        while pending:
+            done = {future for future in pending if future.done()}
+            pending -= done
+            if not done:
+                time.sleep(POLL_SECONDS)
+            for future in done:
                 task = futures[future]
-                try:
-                    record = future.result()
-                except Exception as exc:  # noqa: BLE001 -- e.g. KilledWorker: record it, go on
-                    record = failed_record(task, f"{type(exc).__name__} on the Dask cluster: {exc}")
-                on_result(task, record)
+                on_result(task, self.fetch(future, task))
+            if not pending or lost_timeout is None:
+                continue
+            try:
+                workers = len(client.nthreads())
+            except Exception:  # noqa: BLE001 -- the scheduler is ours and local; count as none
+                workers = 0
+            if workers:
+                no_worker_since = None
+                continue
+            no_worker_since = no_worker_since or time.monotonic()
+            if time.monotonic() - no_worker_since >= lost_timeout:
+                message = (f"lost: no Dask worker left for {lost_timeout:g} s (worker jobs cancelled or past their "
+                           "walltime); run the same command again to finish this point")
+                for future in pending:
+                    future.cancel()
+                    on_result(futures[future], failed_record(futures[future], message))
+                return

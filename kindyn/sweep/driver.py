@@ -46,6 +46,7 @@ class SweepOptions:
     workers: int | None = None
     threads: int | None = None
     scheduler: str | None = None
+    cluster: str | None = None  # "slurm" or "pbs": workers are batch jobs ([cluster] section)
     refine: bool | None = None  # None: as the [sweep] section says
     grids: list | None = None
     figure: bool | None = None  # None: as the case's output.figure says
@@ -131,6 +132,14 @@ class _Sweep:
 
             return DaskPool(self.options.scheduler)
         valid = [p.case for p in self.points if p.case is not None]
+        if self.options.cluster:
+            from kindyn.sweep.jobqueue import JobqueuePool
+
+            config = valid[0].cluster
+            if self.options.threads is None and config.threads_per_run is not None:
+                self.options.threads = config.threads_per_run  # as --threads-per-run
+            threads = self.options.threads or max(c.numerics.threads for c in valid)
+            return JobqueuePool(self.options.cluster, config, threads, self.out)
         threads = self.options.threads or max(c.numerics.threads for c in valid)
         return LocalPool(check_local_layout(self.options.workers, threads), threads)
 
