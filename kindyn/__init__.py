@@ -11,8 +11,10 @@ Conventions (fixed once for the whole package):
 * ``Rm = U/(eta k_f)`` with each flow's declared speed ``U`` and wavenumber ``k_f``.
 
 Entry points for notebooks and scripts (:mod:`kindyn.api`; loaded on first use, so that
-``import kindyn`` stays light): :func:`load_case`, :func:`growth`, :func:`eigenmodes`,
-:func:`coefficients`, :func:`flow_statistics`, :func:`parameter_sweep`.
+``import kindyn`` stays light): :func:`load_case` (a file, TOML text or a dict; a Python function
+as the flow), :func:`growth`, :func:`eigenmodes`, :func:`coefficients`, :func:`flow_statistics`,
+:func:`parameter_sweep`. Each returns a result with the numbers as attributes, ``to_xarray()``,
+``to_netcdf(path)`` and ``figure(path)``; nothing is printed unless ``progress`` asks for it.
 """
 
 from kindyn._version import __version__

@@ -110,18 +110,52 @@ def build_test_solver(layout: BoxLayout, flow, eta: float, mean_field, fluctuati
     return Solver(layout, operator, _stepper(operator, scheme, kernels, flow))
 
 
-def check_stability(scheme: str, courant: float, file: str, key: str, value, rate: float | None = None) -> None:
+def check_stability(scheme: str, courant: float, file: str, key: str, value, rate: float | None = None,
+                    damping: float | None = None) -> None:
     """Refuse a time step beyond the scheme's stability limit for advection (before computing).
 
     ``courant = dt sum_i max|u_i| k_max,i`` bounds ``|lambda dt|`` of the advective part; it must stay
-    below the tableau's limit on the imaginary axis, or the run would report the growth of a
-    numerical instability. ``key``/``value`` name the case key that set the step; ``rate`` (the
-    advection rate ``courant/dt``) lets the message say which step would do.
+    below the tableau's limit (:meth:`kindyn.stepping.Tableau.advective_limit`), or the run would
+    report the growth of a numerical instability. rk3 and rk4 have a limit on the imaginary axis;
+    rk2 has none, and its limit depends on the step diffusion number ``damping = eta/(dt U^2)``
+    (derivation in :mod:`kindyn.stepping.tableaux`; with ``damping=None`` it cannot be checked and is
+    left alone). ``key``/``value`` name the case key that set the step; ``rate`` (the advection rate
+    ``courant/dt``) lets the message say which step would do.
     """
     tableau = TABLEAUX[scheme]
+    if tableau.needs_diffusion:
+        if damping is None:
+            return
+        limit = tableau.advective_limit(damping)
+        if courant <= limit:
+            return
+        dt = courant / rate if rate else None
+        advice = ""
+        if rate and dt:
+            safe = _largest_rk2_courant(tableau, courant, damping)
+            advice = (f" (time_step <= {safe / rate:.3g}, cfl <= {safe:.3g}, or another scheme: rk4 allows "
+                      f"cfl <= {TABLEAUX['rk4'].imaginary_stability:.3g})")
+        raise CaseError(file, key, value,
+                        f"a step within the {tableau.name} stability limit: {tableau.name} amplifies pure advection "
+                        f"at any step (|R(iy)|^2 = 1 + y^4/4) and is stable only where diffusion outweighs that; "
+                        f"at the step diffusion number eta/(dt U^2) = {damping:.3g} it allows dt sum_i max|u_i| "
+                        f"k_max,i <= {limit:.3g}, but the step gives {courant:.3g}{advice}")
     limit = tableau.imaginary_stability
-    if limit and courant > limit:
+    if courant > limit:
         advice = f" (time_step <= {limit / rate:.3g}, cfl <= {limit:.3g})" if rate else ""
         raise CaseError(file, key, value,
                         f"a step within the {tableau.name} stability limit: dt sum_i max|u_i| k_max,i = "
                         f"{courant:.3g} exceeds {limit:.3g}{advice}")
+
+
+def _largest_rk2_courant(tableau, courant: float, damping: float) -> float:
+    """The largest Courant number ``C' <= courant`` that the damped limit accepts, with the damping of
+    the step it implies (``delta`` scales as ``1/dt``, so ``delta' = delta courant/C'``): bisection."""
+    lo, hi = 0.0, courant
+    for _ in range(60):
+        mid = 0.5 * (lo + hi)
+        if mid <= tableau.advective_limit(damping * courant / mid if mid > 0 else float("inf")):
+            lo = mid
+        else:
+            hi = mid
+    return lo

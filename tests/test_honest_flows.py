@@ -123,7 +123,9 @@ def test_abc_flow_four_ways_same_eta_and_same_growth_rate(folder, capsys):
         # U = A = 1, k_f = k = 1 for the 1:1:1 ABC flow (design.md 1): eta = U/(Rm k_f) = 1/12 exactly
         assert case.eta == pytest.approx(1 / 12, rel=1e-15), name
         assert (case.flow.speed, case.flow.wavenumber) == pytest.approx((1.0, 1.0), rel=1e-12), name
-        outcomes[name] = run_growth(case).estimate
+        # 16^3 is flagged by the spectrum criterion at Rm = 12 (kindyn.run adds a grid dependence to
+        # the reported error); the four ways must agree within the growth estimator's own error
+        outcomes[name] = run_growth(case).estimator
     print({name: (e.growth_rate, e.error) for name, e in outcomes.items()})
     ref = outcomes["built-in"]
     assert ref.converged and ref.growth_rate > 0   # Rm = 12 lies in the first ABC dynamo window (8.9, 17.5)

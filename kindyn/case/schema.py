@@ -31,13 +31,36 @@ REQUIRED = object()
 _PI_PATTERN = re.compile(r"^\s*(?:(?P<num>[0-9.eE+-]+)\s*\*?\s*)?pi\s*(?:/\s*(?P<den>[0-9.eE+-]+))?\s*$")
 
 
-def _number(value) -> float:
+# Every number of a case lies in this range (or is 0): far beyond any physical or numerical
+# setting, and far enough inside the floating-point range that squares, products with grid sizes
+# and exponentials of ratios stay finite (1e-300 lengths give |k|^2 = inf; 1e308 wavenumbers
+# overflow mode numbers).
+MAX_MAGNITUDE = 1e100
+MIN_MAGNITUDE = 1e-100
+MAGNITUDE = "between 1e-100 and 1e100"
+# Every whole number fits a signed 64-bit integer (numpy, netCDF attributes, seeds).
+MAX_INTEGER = 2**63 - 1
+MAX_THREADS = 4096  # numerics.threads, whatever the machine (the loader also checks the cores here)
+
+
+def _in_range(v: float, what: str | None = None) -> float:
+    if not math.isfinite(v):
+        raise ValueError(what or "a finite number")
+    if v != 0 and not (MIN_MAGNITUDE <= abs(v) <= MAX_MAGNITUDE):
+        raise ValueError(what or f"a number of magnitude {MAGNITUDE} (or 0)")
+    return v
+
+
+def _number(value, what: str | None = None) -> float:
+    """``value`` as a float in the case range; ``what`` replaces the message of a range error."""
     if isinstance(value, bool):
         raise ValueError("a number")
-    if isinstance(value, (int, float)):
-        if not math.isfinite(value):
-            raise ValueError("a finite number")
-        return float(value)
+    if isinstance(value, int):
+        if abs(value) > MAX_MAGNITUDE:
+            raise ValueError(what or f"a number of magnitude {MAGNITUDE} (or 0)")
+        return _in_range(float(value), what)
+    if isinstance(value, float):
+        return _in_range(value, what)
     if isinstance(value, str):
         match = _PI_PATTERN.match(value)
         if match:
@@ -49,7 +72,7 @@ def _number(value) -> float:
                 raise ValueError("a finite multiple of pi such as \"2*pi\" or \"pi/2\"") from None
             if not math.isfinite(value):
                 raise ValueError("a finite multiple of pi such as \"2*pi\" or \"pi/2\"")
-            return value
+            return _in_range(value, what)
     raise ValueError("a number (or a multiple of pi written as \"2*pi\", \"pi/2\")")
 
 
@@ -58,9 +81,9 @@ def number(value) -> float:
 
 
 def positive(value) -> float:
-    v = _number(value)
+    v = _number(value, f"a positive number {MAGNITUDE}")
     if v <= 0:
-        raise ValueError("a positive number")
+        raise ValueError(f"a positive number {MAGNITUDE}")
     return v
 
 
@@ -74,6 +97,8 @@ def non_negative(value) -> float:
 def integer(value) -> int:
     if isinstance(value, bool) or not isinstance(value, int):
         raise ValueError("a whole number")
+    if abs(value) > MAX_INTEGER:
+        raise ValueError("a whole number below 2**63")
     return value
 
 
@@ -81,6 +106,30 @@ def positive_integer(value) -> int:
     v = integer(value)
     if v < 1:
         raise ValueError("a whole number >= 1")
+    return v
+
+
+def bounded_integer(low: int, high: int) -> Callable:
+    """A whole number from ``low`` to ``high``."""
+    def convert(value) -> int:
+        try:
+            v = integer(value)
+        except ValueError:
+            v = None
+        if v is None or not low <= v <= high:
+            raise ValueError(f"a whole number >= {low} and <= {high}")
+        return v
+    return convert
+
+
+def seed(value) -> int:
+    """A random seed: a whole number from 0 to 2**63 - 1 (numpy's generators take no negative seeds)."""
+    try:
+        v = integer(value)
+    except ValueError:
+        v = -1
+    if v < 0:
+        raise ValueError("a whole number >= 0 (below 2**63)")
     return v
 
 
@@ -121,18 +170,26 @@ def kernel_set(value):
     return value
 
 
-def list_of(convert_one: Callable, what: str, length: int | None = None) -> Callable:
-    """A TOML list converted item by item: ``length`` items, or any non-empty list when ``None``."""
+MAX_LIST = 1000  # items of a list-valued key (each item is at least one solve or one field)
+
+
+def list_of(convert_one: Callable, what: str, length: int | None = None, longest: int = MAX_LIST) -> Callable:
+    """A TOML list converted item by item: ``length`` items, or a non-empty list of at most
+    ``longest`` items when ``None``."""
     count = {2: "two", 3: "three"}.get(length, str(length))
-    expected = f"a list of {count} {what}" if length else f"a non-empty list of {what}"
+    expected = f"a list of {count} {what}" if length else f"a non-empty list of at most {longest} {what}"
 
     def convert(value):
-        if not isinstance(value, list) or not value or (length and len(value) != length):
+        if not isinstance(value, list) or not value or (length and len(value) != length) or len(value) > longest:
             raise ValueError(expected)
-        try:
-            return tuple(convert_one(v) for v in value)
-        except ValueError:
-            raise ValueError(expected) from None
+        items = []
+        for i, v in enumerate(value):
+            try:
+                items.append(convert_one(v))
+            except ValueError as exc:
+                detail = str(exc)
+                raise ValueError(expected if detail in expected else f"{expected} (item {i + 1}: {detail})") from None
+        return tuple(items)
     return convert
 
 
@@ -221,7 +278,7 @@ class MagneticConfig(SectionConfig):
 
     eta: float | None = setting(positive, None, "magnetic diffusivity (give exactly one of eta and Rm)")
     Rm: float | None = setting(positive, None, "magnetic Reynolds number U/(eta k_f) with the flow's U and k_f")
-    seed: int = setting(integer, 1, "seed of the random initial field")
+    seed: int = setting(seed, 1, "seed of the random initial field")
     initial_field: str = setting(choice("random", "flow"), "random",
                                  "random: seeded solenoidal noise with zero mean; flow: B(0) = u")
     initial_peak: float | None = setting(
@@ -255,7 +312,8 @@ class NumericsConfig(SectionConfig):
     """``[numerics]``: how the grid arithmetic is done (transforms, threads, precision, kernels)."""
 
     fft: str = setting(choice(*ENGINES), "fftw", "transform engine")
-    threads: int = setting(positive_integer, 1, "threads of the FFTs and of the compiled array kernels")
+    threads: int = setting(bounded_integer(1, MAX_THREADS), 1,
+                           "threads of the FFTs and of the compiled array kernels (at most the cores here)")
     planning: str = setting(choice(*PLANNING_EFFORTS), "measure", "FFTW planning effort")
     precision: str = setting(choice(*PRECISIONS), "double", "floating-point precision of the fields")
     array_kernels: str = setting(
@@ -265,13 +323,46 @@ class NumericsConfig(SectionConfig):
         "(numba when it works here)")
 
 
+FIGURE_FORMATS = ("png", "pdf", "svg")
+FIGURE_INCHES = (1.0, 40.0)  # a figure's width and height: from a thumbnail to a poster panel
+
+
+def figure_size(value) -> tuple[float, float]:
+    """``[width, height]`` in inches, each between :data:`FIGURE_INCHES`."""
+    low, high = FIGURE_INCHES
+    expected = f"[width, height] in inches, each between {low:g} and {high:g}"
+    if not isinstance(value, list) or len(value) != 2:
+        raise ValueError(expected)
+    sizes = tuple(_number(v, expected) for v in value)
+    if not all(low <= v <= high for v in sizes):
+        raise ValueError(expected)
+    return sizes
+
+
 @dataclass(frozen=True, kw_only=True)
 class OutputConfig(SectionConfig):
     """``[output]``: file names and what is written."""
 
     name: str | None = setting(file_stem, None, "base name of the output files (default: the case file's stem)")
-    figure: bool = setting(boolean, True, "write PNG figures")
+    figure: bool = setting(boolean, True, "write figures")
     field: bool = setting(boolean, True, "write the final field on the grid to the netCDF file")
+    figure_format: str = setting(choice(*FIGURE_FORMATS), "png", "file format of the figures: png, pdf or svg")
+    figure_dpi: int = setting(bounded_integer(50, 1200), 300,
+                              "resolution of PNG figures (and of the colour maps inside PDF and SVG), dots per inch")
+    figure_size: tuple | None = setting(figure_size, None,
+                                        "[width, height] of the figures in inches (default: each figure's own)")
+
+    STYLE_KEYS = ("figure_format", "figure_dpi", "figure_size")
+
+    def as_dict(self) -> dict:
+        """The values, without the figure-style keys that are at their defaults: they came after the
+        fingerprints of checkpoints and sweep points (:attr:`kindyn.case.Case.fingerprint`), which must
+        stay those of the same case written before."""
+        values = super().as_dict()
+        for f in dataclasses.fields(self):
+            if f.name in self.STYLE_KEYS and values[f.name] == f.default:
+                del values[f.name]
+        return values
 
 
 # the key tables of the core sections, derived from the fields (``key -> Key``)

@@ -8,9 +8,11 @@ that fit the box and survive dealiasing, a steady method for a steady flow) is c
 
 from __future__ import annotations
 
+import dataclasses
+
 from dataclasses import dataclass
 
-from kindyn.case.schema import (SectionConfig, boolean, choice, list_of, non_negative, positive,
+from kindyn.case.schema import (SectionConfig, boolean, bounded_integer, choice, list_of, non_negative, positive,
                                 positive_integer, setting)
 
 AXES = ("x", "y", "z")
@@ -55,13 +57,37 @@ class TestfieldConfig(SectionConfig):
     min_time: float = setting(non_negative, 0.0, "never stop the time stepping before this time")
     max_time: float | None = setting(
         positive, None, "stop the time stepping here even if not converged (default: settle + 200 blocks)")
-    samples_per_period: int = setting(positive_integer, 32,
+    samples_per_period: int = setting(bounded_integer(1, 100_000), 32,
                                       "EMF samples per flow period (or per block) for time averages")
     solver_tolerance: float = setting(positive, 1e-11, "relative residual of the iterative steady solve (GMRES)")
     onset_check: bool = setting(
         boolean, True, "before direct steady solves, check that no test problem has a growing homogeneous mode")
     closure: bool = setting(
         boolean, False, "compare the mean-field growth rate at the box scale with a direct run (kindyn run)")
+    all_directions: bool = setting(
+        boolean, False,
+        "test fields varying along x, along y and along z (the same K on each axis): the full alpha_ij, every "
+        "beta_ijk that planar averages determine, and the Raedler decomposition (gamma, beta_ij, delta, kappa)")
+    realisations: int = setting(
+        bounded_integer(1, 10_000), 1,
+        "ensemble of a random flow: coefficients of this many realisations (flow seeds s, s+1, ...), mean, "
+        "spread and combined standard error")
+    closure_coupling: int = setting(
+        bounded_integer(0, 8), 2,
+        "kindyn closure: orders of harmonic coupling in the memory-consistent prediction (0: the mode K alone; "
+        "n: also the mean-field harmonics reached from K in n steps of the flow's wavenumber along the axis)")
+
+    LATER_KEYS = ("all_directions", "realisations", "closure_coupling")
+
+    def as_dict(self) -> dict:
+        """The values, without the keys added after the first fingerprints when they are at their
+        defaults, so that a case written before keeps its fingerprint (and its checkpoints and sweep
+        points: :attr:`kindyn.case.Case.fingerprint`)."""
+        values = super().as_dict()
+        for f in dataclasses.fields(self):
+            if f.name in self.LATER_KEYS and values[f.name] == f.default:
+                del values[f.name]
+        return values
 
 
 TESTFIELD_KEYS = TestfieldConfig.key_table()  # key -> Key, derived from the fields

@@ -8,7 +8,15 @@ Where output goes (the same for every command; README "Commands"):
 * with ``--json`` stdout holds exactly one JSON object: the results are only in it, and every
   caution is in it (``cautions``) *and* on stderr. Anything else that would print on stdout while
   the command runs (a user flow module on import, a library) is sent to stderr instead
-  (:func:`stdout_reserved_for_json`, used by :mod:`kindyn.cli`).
+  (:func:`stdout_reserved_for_json`, used by :mod:`kindyn.cli`);
+* **notes** (a run resumed from a checkpoint, the array kernels' fallback): stderr, also with
+  ``--quiet``.
+
+Progress lines of long computations carry the elapsed time and an ETA
+(:meth:`Reporter.update` with a :class:`kindyn.commands.progress.Progress`), at most one every two
+seconds. The figure options (``--figure-format``, ``--figure-size``, ``--figure-dpi``) are the
+case's ``[output]`` keys ``figure_format``, ``figure_size``, ``figure_dpi``
+(:func:`figure_overrides`). Every file records the command that wrote it (:func:`command_text`).
 """
 
 from __future__ import annotations
@@ -21,6 +29,8 @@ import sys
 from pathlib import Path
 
 from kindyn.case import load_case
+from kindyn.errors import CaseError
+from kindyn.output.numbers import number_text, with_error  # noqa: F401 (re-exported)
 
 _json_stream = None  # the real stdout while stdout_reserved_for_json is active
 
@@ -41,8 +51,83 @@ def add_quiet_argument(parser) -> None:
                         help="no progress lines on stderr (results and cautions are always printed)")
 
 
+FIGURE_FORMATS = ("png", "pdf", "svg")
+
+
+def add_figure_arguments(parser) -> None:
+    group = parser.add_argument_group("figures (the [output] keys figure_format, figure_size, figure_dpi)")
+    group.add_argument("--figure-format", choices=FIGURE_FORMATS, default=None,
+                       help="file format of the figures (default png)")
+    group.add_argument("--figure-size", default=None, metavar="W,H",
+                       help="width and height of the figures in inches, e.g. 3.4,2.6 (default: each figure's own)")
+    group.add_argument("--figure-dpi", type=int, default=None, metavar="DPI",
+                       help="resolution of PNG figures in dots per inch (default 300)")
+
+
+def figure_overrides(args) -> list[str]:
+    """The figure options as ``--set`` overrides of the case's ``[output]`` section."""
+    out = []
+    if getattr(args, "figure_format", None):
+        out.append(f'output.figure_format="{args.figure_format}"')
+    size = getattr(args, "figure_size", None)
+    if size:
+        parts = [p.strip() for p in str(size).replace("x", ",").split(",")]
+        try:
+            width, height = (float(p) for p in parts)
+        except ValueError:
+            raise CaseError("--figure-size", "figure_size", size, "W,H: width and height in inches, e.g. 3.4,2.6") \
+                from None
+        out.append(f"output.figure_size=[{width!r}, {height!r}]")
+    if getattr(args, "figure_dpi", None) is not None:
+        out.append(f"output.figure_dpi={int(args.figure_dpi)}")
+    return out
+
+
 def case_from_args(args):
-    return load_case(args.case, args.overrides)
+    return load_case(args.case, [*args.overrides, *figure_overrides(args)])
+
+
+@contextlib.contextmanager
+def command_environment(command: str):
+    """While the block runs, files written by this process and the processes it starts (sweep
+    points, test-field realisations) record ``command`` (:func:`kindyn.output.netcdf.command_line`)."""
+    from kindyn.output.netcdf import COMMAND_VARIABLE
+
+    previous = os.environ.get(COMMAND_VARIABLE)
+    os.environ[COMMAND_VARIABLE] = command
+    try:
+        yield
+    finally:
+        if previous is None:
+            os.environ.pop(COMMAND_VARIABLE, None)
+        else:
+            os.environ[COMMAND_VARIABLE] = previous
+
+
+def command_text(args) -> str:
+    """The command line of ``args`` as a user would type it (``kindyn run case.toml --out o ...``),
+    recorded in every file the command writes."""
+    import shlex
+
+    words = ["kindyn", str(getattr(args, "command", "") or "")]
+    options = dict(vars(args))
+    options.pop("command", None)
+    if "case" in options:
+        words.append(str(options.pop("case")))
+    for key, value in options.items():
+        flag = "--" + key.replace("_", "-")
+        if key == "overrides":
+            flag = "--set"
+        if value is None or value is False or value == []:
+            continue
+        if value is True:
+            words.append(flag)
+        elif isinstance(value, (list, tuple)):
+            for item in value:
+                words += [flag, str(item)]
+        else:
+            words += [flag, str(value)]
+    return " ".join(shlex.quote(w) for w in words if w)
 
 
 def output_folder(args) -> Path:
@@ -121,10 +206,23 @@ class Reporter:
         self.command = command
         self.json = bool(getattr(args, "json", False))
         self.quiet = bool(getattr(args, "quiet", False))
+        self.command_line = command_text(args)
+        self._throttle = None
 
     def progress(self, text: str) -> None:
         if not self.quiet:
             say(text)
+
+    def update(self, progress, force: bool = False) -> None:
+        """A :class:`~kindyn.commands.progress.Progress` update as one line with the elapsed time and
+        the ETA (stderr), at most one every two seconds unless ``force``; nothing with ``--quiet``."""
+        if self.quiet:
+            return
+        if self._throttle is None:
+            from kindyn.commands.progress import Throttle
+
+            self._throttle = Throttle(lambda p: say(p.line()))
+        self._throttle(progress, force)
 
     @property
     def progress_callback(self):
@@ -150,48 +248,7 @@ class Reporter:
             print_json(summary)
 
 
-def number_text(value, digits: int = 6, sign: bool = False) -> str:
-    """``value`` with ``digits`` significant digits, ``n/a`` for None/NaN."""
-    if value is None or not math.isfinite(float(value)):
-        return "n/a" if value is None or math.isnan(float(value)) else f"{float(value):{'+' if sign else ''}g}"
-    return f"{float(value):{'+' if sign else ''}.{digits}g}"
-
-
-def with_error(value, error, sign: bool = False, digits: int = 6) -> str:
-    """``value +- error`` with the error rounded to one significant digit and the value to the same
-    decimal place (``0.05296 +- 0.0004`` -> ``0.0530 +- 0.0004``).
-
-    Without an error (None, NaN) the value keeps ``digits`` significant digits and is marked
-    ``(no error estimate)``; an infinite error reads ``+- inf``; a zero error keeps ``digits``.
-    """
-    if value is None or not math.isfinite(float(value)):
-        return number_text(value, digits, sign)
-    value = float(value)
-    if error is None or math.isnan(float(error)):
-        return f"{number_text(value, digits, sign)} (no error estimate)"
-    error = abs(float(error))
-    if math.isinf(error):
-        return f"{number_text(value, digits, sign)} +- inf"
-    if error == 0.0:
-        return f"{number_text(value, digits, sign)} +- 0"
-    exponent = math.floor(math.log10(error))
-    rounded = round(error, -exponent)
-    if rounded >= 10.0 ** (exponent + 1):  # 0.096 -> 0.1
-        exponent += 1
-    decimals = -exponent
-    plus = "+" if sign else ""
-    big = max(abs(value), error)
-    if decimals < 0 and big < 1e6:  # 1234.5 +- 23 -> 1230 +- 20
-        return f"{round(value, decimals):{plus}.0f} +- {round(error, decimals):.0f}"
-    if decimals >= 0 and (big >= 1e-4 or value == 0.0) and big < 1e6:
-        if decimals > 12:  # an error far below the value's digits: twelve significant digits are enough
-            return f"{value:{plus}.12g} +- {rounded:.0e}"
-        return f"{value:{plus}.{decimals}f} +- {error:.{decimals}f}"
-    # scientific: value and error in units of 10^e of the value (or of the error, if larger)
-    e = math.floor(math.log10(big))
-    places = max(0, e - exponent)
-    scale = 10.0 ** e
-    return f"({value / scale:{plus}.{places}f} +- {error / scale:.{places}f})e{e:+d}"
+# number_text and with_error live in kindyn.output.numbers (the figures print the same digits)
 
 
 def has_estimate(summary: dict) -> bool:

@@ -16,7 +16,12 @@ the rate its file holds (``estimate_available`` false, ``growth_rate_error`` nul
 the ensemble, not the run, measures the uncertainty of the mean. The cautions of the members (resolution warnings, no estimate, not converged)
 are carried into the summary: the ``cautions`` list (stdout, or the JSON and stderr with
 ``--json``), each member's ``resolution_warning`` and ``cutoff_ratio`` (JSON and netCDF variables)
-and the netCDF attribute ``caution``.
+and the netCDF attribute ``caution``. The summary file is written by
+:mod:`kindyn.output.ensemble_file` (with the provenance every kindyn file carries).
+
+Progress (stderr, off with ``--quiet``) shows each realisation's running estimate with the
+elapsed time and an ETA for the whole ensemble: the realisations still to run at the mean wall
+time of those done, plus the current one's own ETA (:mod:`kindyn.commands.progress`).
 """
 
 from __future__ import annotations
@@ -28,10 +33,11 @@ import numpy as np
 from kindyn.case import load_case
 from kindyn.commands.common import (NO_ESTIMATE, Reporter, add_case_arguments, add_quiet_argument, case_from_args,
                                     clean_number, has_estimate, number_text, output_folder, with_error)
+from kindyn.commands.progress import Progress, growth_reporter
 from kindyn.diagnostics.spectra import resolution_caution
 from kindyn.errors import CaseError
+from kindyn.output.ensemble_file import write_ensemble_file
 from kindyn.output.growth_file import result_summary, write_growth_file
-from kindyn.output.netcdf import CONVENTIONS, add_variable, atomic_dataset, set_attributes
 from kindyn.run import run_growth
 
 HELP = "run N realisations of a random flow (flow seeds s, s+1, ...): mean growth rate, spread, standard error"
@@ -91,15 +97,18 @@ def execute(args) -> int:
     cases = [load_case(args.case, [*args.overrides, f"flow.seed={first + i}"]) for i in range(args.count)]
     out = output_folder(args)
     members = []
+    meter = EnsembleMeter(args.count, report)
     for i, case in enumerate(cases):
         seed = first + i
         report.progress(f"kindyn ensemble: realisation {i + 1}/{args.count}, flow seed {seed}, Rm = {case.Rm:.6g}")
-        outcome = run_growth(case)
+        outcome = run_growth(case, progress=meter.member(case, i) if not report.quiet else None)
+        meter.finished(i)
         path = out / f"{case.name}-seed{seed}.nc"
         caution = (resolution_caution(outcome.cutoff_ratio, case.run.resolution_threshold)
                    if outcome.resolution_warning else "")
         write_growth_file(path, case, outcome, None,
-                          extra={"ensemble_member": i, "flow_seed": seed, "resolution_caution": caution})
+                          extra={"ensemble_member": i, "flow_seed": seed, "resolution_caution": caution},
+                          command=report.command_line)
         summary = result_summary(case, outcome)
         members.append({"seed": seed, "growth_rate": summary["growth_rate"],
                         "growth_rate_error": summary["growth_rate_error"], "converged": summary["converged"],
@@ -119,7 +128,7 @@ def execute(args) -> int:
               "resolution_warning": any(m["resolution_warning"] for m in members),
               "cautions": cautions, "members": members}
     path = out / f"{base.name}-ensemble.nc"
-    _write_ensemble_file(path, base, result)
+    write_ensemble_file(path, base, result, command=report.command_line)
     result["output"] = str(path)
     for m in members:
         report.result(f"  flow seed {m['seed']}: {member_line(m)}")
@@ -145,28 +154,31 @@ def member_line(m: dict) -> str:
     return text + (", possibly under-resolved" if m["resolution_warning"] else "")
 
 
-def _write_ensemble_file(path, case, result: dict) -> None:
-    members = result["members"]
+class EnsembleMeter:
+    """Progress of an ensemble: each member's running estimate with the ETA of the whole ensemble."""
 
-    def column(key):
-        return np.asarray([np.nan if m[key] is None else float(m[key]) for m in members])
+    def __init__(self, count: int, report):
+        import time
 
-    with atomic_dataset(path) as ds:
-        set_attributes(ds, {"Conventions": CONVENTIONS, "title": f"kindyn ensemble of {case.name}",
-                            "case_file": case.path, "case_text": case.text,
-                            "caution": "; ".join(result["cautions"]),
-                            **{f"result_{k}": v for k, v in result.items() if k != "members"}})
-        ds.createDimension("member", len(members))
-        add_variable(ds, "flow_seed", ("member",), np.asarray([m["seed"] for m in members]), dtype="i8",
-                     long_name="flow seed of the realisation")
-        add_variable(ds, "growth_rate", ("member",), column("growth_rate"),
-                     long_name="amplitude growth rate gamma of the realisation")
-        add_variable(ds, "growth_rate_error", ("member",), column("growth_rate_error"),
-                     long_name="estimation uncertainty of gamma within the run")
-        add_variable(ds, "converged", ("member",), np.asarray([int(m["converged"]) for m in members]),
-                     dtype="i1", long_name="1 when the run's estimate converged")
-        add_variable(ds, "resolution_warning", ("member",),
-                     np.asarray([int(m["resolution_warning"]) for m in members]), dtype="i1",
-                     long_name="1 when the realisation may be under-resolved (see the attribute caution)")
-        add_variable(ds, "cutoff_ratio", ("member",), column("cutoff_ratio"),
-                     long_name="magnetic spectrum at the dealiasing cut-off over its peak")
+        self.count, self.report, self.clock = count, report, time.monotonic
+        self.started = self.clock()
+        self.member_started = self.started
+        self.done_seconds: list[float] = []
+
+    def member(self, case, index: int):
+        self.member_started = self.clock()
+
+        def sink(update: Progress) -> None:
+            current = self.clock() - self.member_started
+            per_member = (sum(self.done_seconds) / len(self.done_seconds) if self.done_seconds else
+                          (current + update.eta if update.eta is not None else None))
+            eta = None
+            if update.eta is not None and per_member is not None:
+                eta = update.eta + per_member * (self.count - index - 1)
+            self.report.update(Progress("ensemble", f"  [{index + 1}/{self.count}]" + update.text,
+                                        self.clock() - self.started, eta, None, "all realisations"), force=True)
+
+        return growth_reporter(case, sink, command="ensemble")
+
+    def finished(self, index: int) -> None:
+        self.done_seconds.append(self.clock() - self.member_started)

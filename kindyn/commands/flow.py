@@ -7,7 +7,8 @@ spectra; readable back as a ``velocity-file`` flow) and ``NAME-flow.png`` (spect
 
 from __future__ import annotations
 
-from kindyn.commands.common import add_case_arguments, case_from_args, clean_number, output_folder, print_json, say
+from kindyn.commands.common import (add_case_arguments, add_figure_arguments, case_from_args, clean_number,
+                                    command_text, output_folder, print_json, say)
 from kindyn.diagnostics.flow_stats import flow_statistics, time_dependence
 from kindyn.flows.scales import scale_rule
 from kindyn.assemble import transform_settings
@@ -30,6 +31,25 @@ MEAN_CAUTION = ("the flow has a uniform part |<u>| = {mean:.3g} (allowed by flow
 
 def add_arguments(parser) -> None:
     add_case_arguments(parser)
+    add_figure_arguments(parser)
+
+
+def sample_flow(case):
+    """``(u, stats)``: the velocity ``(3, nx, ny, nz)`` at t = 0 on the case's grid and its
+    :class:`~kindyn.diagnostics.flow_stats.FlowStatistics` (the command and :func:`kindyn.api.flow_statistics`)."""
+    layout = BoxLayout(case.box, transform_settings(case.numerics, precision="double"))
+    u = layout.sample_velocity(case.flow, 0.0)
+    return u, flow_statistics(u, layout.spectral_from_physical(u), layout, case.eta)
+
+
+def flow_figure_of(path, case, stats, summary, style=None) -> None:
+    from kindyn.output.figures import FigureStyle
+    from kindyn.output.figures_flow import flow_spectra_figure
+
+    flow_spectra_figure(path, stats.wavenumbers, stats.energy_spectrum, stats.helicity_spectrum,
+                        f"{case.name}: {case.flow_type} flow, grid {'x'.join(map(str, case.box.grid))}, t = 0, "
+                        f"u_rms = {stats.u_rms:.4g}", note="; ".join(summary["cautions"]),
+                        style=style or FigureStyle.from_output(case.output))
 
 
 def flow_summary(case, stats) -> dict:
@@ -84,22 +104,15 @@ def flow_summary(case, stats) -> dict:
 def execute(args) -> int:
     case = case_from_args(args)
     out = output_folder(args)
-    box = case.box
-    layout = BoxLayout(box, transform_settings(case.numerics, precision="double"))
-    u = layout.sample_velocity(case.flow, 0.0)
-    u_hat = layout.spectral_from_physical(u)
-    stats = flow_statistics(u, u_hat, layout, case.eta)
+    u, stats = sample_flow(case)
     summary = flow_summary(case, stats)
-    nc_path, png_path = out / f"{case.name}-flow.nc", out / f"{case.name}-flow.png"
+    nc_path, png_path = out / f"{case.name}-flow.nc", out / f"{case.name}-flow.{case.output.figure_format}"
     from kindyn.output.flow_file import write_flow_file
 
-    write_flow_file(nc_path, case, summary, u, stats.wavenumbers, stats.energy_spectrum, stats.helicity_spectrum)
+    write_flow_file(nc_path, case, summary, u, stats.wavenumbers, stats.energy_spectrum, stats.helicity_spectrum,
+                    command=command_text(args))
     if case.output.figure:
-        from kindyn.output.figures_flow import flow_spectra_figure
-
-        flow_spectra_figure(png_path, stats.wavenumbers, stats.energy_spectrum, stats.helicity_spectrum,
-                            f"{case.name}: {case.flow_type} flow, grid {list(box.grid)}, t = 0",
-                            note="; ".join(summary["cautions"]))
+        flow_figure_of(png_path, case, stats, summary)
     summary["output"] = str(nc_path)
     summary["figure"] = str(png_path) if case.output.figure else None
     if args.json:

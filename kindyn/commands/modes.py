@@ -7,6 +7,11 @@ eigenfields (physical space, real and imaginary parts) to ``OUT/NAME-modes.nc`` 
 leading mode's ``|B|`` on slices to ``OUT/NAME-modes.png``. ``--json`` prints one object with at
 least ``eigenvalues`` (list of ``[gamma, omega]``), ``residuals``, ``growth_rate``,
 ``growth_rate_error`` (the bound ``residual / T``), ``frequency``, ``converged`` and ``cautions``.
+
+Progress (stderr, off with ``--quiet``): one line per eigen-solve (one for the box, one per k_z
+for the planar reduction) with the elapsed time and, from the second solve on, an ETA at the
+mean time per solve (:class:`kindyn.commands.progress.CountEta`); a single box solve has no ETA
+(the Krylov iteration stops when it converges).
 """
 
 from __future__ import annotations
@@ -15,8 +20,9 @@ import math
 
 import numpy as np
 
-from kindyn.commands.common import (Reporter, add_case_arguments, add_quiet_argument, case_from_args, number_text,
-                                    output_folder, with_error)
+from kindyn.commands.common import (Reporter, add_case_arguments, add_figure_arguments, add_quiet_argument,
+                                    case_from_args, number_text, output_folder, with_error)
+from kindyn.commands.progress import CountEta, Progress
 from kindyn.eigen.solve import point_summary, solve_modes
 from kindyn.errors import CaseError
 from kindyn.diagnostics.spectra import resolution_caution
@@ -32,6 +38,67 @@ def add_arguments(parser) -> None:
     parser.add_argument("--count", type=int, default=None, metavar="N",
                         help="number of leading eigenvalues (overrides modes.count)")
     add_quiet_argument(parser)
+    add_figure_arguments(parser)
+
+
+def solve_count(case) -> int:
+    """How many eigen-solves ``case`` makes: one per k_z of the planar reduction, else one."""
+    from kindyn.eigen.solve import choose_method, default_wavenumbers
+    from kindyn.eigen.z_independent import is_z_independent
+
+    if choose_method(case, is_z_independent(case.flow, case.box)) != "planar":
+        return 1
+    return len(case.modes.kz or default_wavenumbers(case.box))
+
+
+def modes_progress(case, sink, command: str = "modes"):
+    """A ``progress(text)`` callable for :func:`kindyn.eigen.solve.solve_modes` that sends
+    :class:`Progress` updates (solve i of n, elapsed, ETA) to ``sink``."""
+    total = solve_count(case)
+    meter = CountEta(total)
+    calls = [0]
+
+    def progress(text: str) -> None:
+        done = calls[0]
+        calls[0] += 1
+        elapsed, eta, fraction = meter.at(done)
+        if done == 0:
+            eta = None
+        where = f"solve {done + 1}/{total}: " if total > 1 else ""
+        sink(Progress(command, f"  {where}{text}", elapsed, eta, fraction, "remaining solves"))
+
+    return progress
+
+
+def modes_cautions(case, outcome, summary: dict) -> list[str]:
+    """The cautions of an eigen-solve (time-step error, resolution, convergence)."""
+    cautions = [TIME_STEP_CAUTION.format(dt=outcome.time_step)]
+    if outcome.resolution_warning:
+        cautions.insert(0, resolution_caution(outcome.cutoff_ratio, case.run.resolution_threshold,
+                                              what="leading eigenfield's spectrum"))
+    if not summary["converged"]:
+        cautions.append(f"the leading eigenvalue did not converge: {summary['stop_reason']} (residual "
+                        f"{outcome.leading.residual:.2g}, modes.tolerance {case.modes.tolerance:g})")
+    return cautions
+
+
+def modes_figure_of(path, case, outcome, summary, style=None) -> None:
+    """The figure of the leading eigenfield (``kindyn modes`` and :meth:`kindyn.api.ModesResult.figure`)."""
+    from kindyn.output.figures import FigureStyle
+    from kindyn.output.figures_modes import modes_figure
+
+    lead = outcome.leading
+    where = f", $k_z$ = {lead.kz:.4g}" if outcome.method == "planar" else ""
+    omega = 0.0 if abs(lead.frequency) < 1e-12 else lead.frequency
+    from kindyn.output.figures import rounded
+
+    gamma = rounded(summary["growth_rate"], summary["growth_rate_error"], sign=True)
+    modes_figure(path, leading_slices(case, outcome),
+                 f"{case.name}: leading mode $p = \\gamma + i\\omega$, $\\gamma$ = {gamma}, "
+                 f"$\\omega$ = {omega:.6g}{where}; Rm = {case.Rm:.4g}",
+                 warning="possibly under-resolved" if outcome.resolution_warning else "",
+                 converged=bool(summary["converged"]), stop_reason=summary.get("stop_reason") or "",
+                 style=style or FigureStyle.from_output(case.output))
 
 
 def summary_of(case, outcome) -> dict:
@@ -118,32 +185,19 @@ def execute(args) -> int:
     if args.count is not None and args.count < 1:
         raise CaseError("", "--count", args.count, "a whole number >= 1")
     out = output_folder(args)
-    nc_path, png_path = out / f"{case.name}-modes.nc", out / f"{case.name}-modes.png"
+    nc_path, png_path = out / f"{case.name}-modes.nc", out / f"{case.name}-modes.{case.output.figure_format}"
     report.progress(f"kindyn modes {case.path}: {case.flow_type} flow, grid {list(case.box.grid)}, "
                     f"Rm = {case.Rm:.6g} (eta = {case.eta:.6g})")
-    progress = None if report.quiet else (lambda text: report.progress("  " + text))
+    progress = None if report.quiet else modes_progress(case, lambda p: report.update(p, force=True))
     outcome = solve_modes(case, count=args.count, progress=progress)
     summary = summary_of(case, outcome)
-    cautions = [TIME_STEP_CAUTION.format(dt=outcome.time_step)]
-    if outcome.resolution_warning:
-        cautions.insert(0, resolution_caution(outcome.cutoff_ratio, case.run.resolution_threshold,
-                                              what="leading eigenfield's spectrum"))
-    if not summary["converged"]:
-        cautions.append(f"the leading eigenvalue did not converge: {summary['stop_reason']} (residual "
-                        f"{outcome.leading.residual:.2g}, modes.tolerance {case.modes.tolerance:g})")
+    cautions = modes_cautions(case, outcome, summary)
     from kindyn.output.modes_file import write_modes_file
 
-    write_modes_file(nc_path, case, outcome, summary, cautions)
+    write_modes_file(nc_path, case, outcome, summary, cautions, command=report.command_line)
     figure = None
     if case.output.figure and outcome.fields:
-        from kindyn.output.figures_modes import modes_figure
-
-        lead = outcome.leading
-        where = f", kz = {lead.kz:.4g}" if outcome.method == "planar" else ""
-        modes_figure(png_path, leading_slices(case, outcome),
-                     f"{case.name}: leading mode p = {lead.growth_rate:+.6g} "
-                     f"{0.0 if abs(lead.frequency) < 1e-12 else lead.frequency:+.6g} i{where}",
-                     warning="possibly under-resolved" if outcome.resolution_warning else "")
+        modes_figure_of(png_path, case, outcome, summary)
         figure = str(png_path)
     summary["output"] = str(nc_path)
     summary["figure"] = figure

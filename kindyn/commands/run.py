@@ -6,17 +6,23 @@ stdout; progress lines to stderr (``--quiet`` silences them); ``--json`` prints 
 before the growth estimate has an error says "not converged, no estimate yet" and reports
 ``growth_rate``, ``growth_rate_error`` and ``frequency`` as null (the value reached so far is
 ``growth_rate_preliminary``).
+
+Progress (stderr, every two seconds, off with ``--quiet``) shows the running estimate with the
+elapsed time and an ETA (:class:`kindyn.commands.progress.GrowthEta`: from how fast the error
+falls towards the tolerance, else from ``max_time``). A run that resumes from a checkpoint says so
+(a note on stderr, also with ``--quiet``; ``resumed`` in the JSON and the file).
 """
 
 from __future__ import annotations
 
-import math
 
-from kindyn.commands.common import (NO_ESTIMATE, Reporter, add_case_arguments, add_quiet_argument, case_from_args,
-                                    number_text, output_folder, settle_estimate, with_error)
+from kindyn.commands.common import (NO_ESTIMATE, Reporter, add_case_arguments, add_figure_arguments,
+                                    add_quiet_argument, case_from_args, number_text, output_folder, settle_estimate,
+                                    with_error)
+from kindyn.commands.progress import growth_progress_text, growth_reporter
 from kindyn.output.checkpoint import Checkpoint
 from kindyn.output.growth_file import record_growth_run
-from kindyn.run import run_growth
+from kindyn.run import default_tolerance, run_growth
 
 HELP = "integrate the induction equation until the growth rate converges"
 
@@ -24,15 +30,41 @@ def add_arguments(parser) -> None:
     add_case_arguments(parser)
     parser.add_argument("--fresh", action="store_true", help="ignore an existing checkpoint and start again")
     add_quiet_argument(parser)
+    add_figure_arguments(parser)
 
 
-def progress_line(t, estimate, tolerance) -> str:
-    if not math.isfinite(estimate.growth_rate):
-        return f"  t = {t:10.4g}   collecting samples"
-    if not math.isfinite(estimate.error):
-        return f"  t = {t:10.4g}   gamma = {estimate.growth_rate:+.6g} (no error estimate yet)"
-    return (f"  t = {t:10.4g}   gamma = {estimate.growth_rate:+.6g} +- {estimate.error:.2g}"
-            f"   (tolerance {tolerance:.2g}, {min(estimate.error / tolerance, 999):.3g}x)")
+progress_line = growth_progress_text  # the progress line without elapsed time and ETA
+
+
+class AnnouncingCheckpoint(Checkpoint):
+    """A checkpoint that tells ``say`` when the run resumes from it (time, step, samples)."""
+
+    def __init__(self, path, say):
+        super().__init__(path)
+        self.say = say
+
+    def load(self, case):
+        state = super().load(case)
+        if state:
+            self.say(f"resuming from the checkpoint {self.path} at t = {state['time']:.6g} (step {state['step']}, "
+                     f"{len(state['record']['times'])} samples); --fresh starts again")
+        return state
+
+
+def growth_figure_of(path, case, outcome, summary=None, style=None) -> None:
+    """The figure of a run (``kindyn run`` and :meth:`kindyn.api.GrowthResult.figure`)."""
+    from kindyn.output.figures import FigureStyle, growth_figure
+
+    e, rec = outcome.estimate, outcome.record
+    converged = bool(e.converged and outcome.stop_reason == "converged")
+    growth_figure(path, rec.times, rec.log_energy, e.growth_rate, e.error, e.window,
+                  f"{case.name}: {case.flow_type} flow, Rm = {case.Rm:.4g}, grid "
+                  f"{'x'.join(map(str, case.box.grid))}",
+                  warning="possibly under-resolved" if outcome.resolution_warning else "",
+                  converged=converged, stop_reason="" if converged else outcome.stop_reason,
+                  estimate_times=rec.estimate_times, estimate_rates=rec.estimate_rates,
+                  estimate_errors=rec.estimate_errors, tolerance=default_tolerance(case),
+                  U=case.flow.speed, k_f=case.flow.wavenumber, style=style or FigureStyle.from_output(case.output))
 
 
 def result_lines(summary: dict, outcome) -> list[str]:
@@ -67,26 +99,23 @@ def execute(args) -> int:
     report = Reporter("run", args)
     case = case_from_args(args)
     out = output_folder(args)
-    nc_path, png_path = out / f"{case.name}.nc", out / f"{case.name}.png"
-    checkpoint = Checkpoint(out / f"{case.name}.checkpoint.nc")
+    nc_path, png_path = out / f"{case.name}.nc", out / f"{case.name}.{case.output.figure_format}"
+    checkpoint = AnnouncingCheckpoint(out / f"{case.name}.checkpoint.nc", report.note)
     if args.fresh:
         checkpoint.remove()
     report.progress(f"kindyn run {case.path}: {case.flow_type} flow, grid {list(case.box.grid)}, "
                     f"Rm = {case.Rm:.6g} (eta = {case.eta:.6g})")
-    progress = None if report.quiet else (lambda t, e, tol: report.progress(progress_line(t, e, tol)))
+    progress = None if report.quiet else growth_reporter(case, lambda p: report.update(p, force=True))
     outcome = run_growth(case, progress=progress, checkpoint=checkpoint)
-    summary, resolution = record_growth_run(nc_path, case, outcome)
+    if outcome.field is None:  # not the first of several MPI processes: that one writes and reports
+        return 0
+    summary, resolution = record_growth_run(nc_path, case, outcome, command=report.command_line)
     summary = settle_estimate(summary)
     if outcome.array_kernels_note:
         report.note(f"array kernels {outcome.array_kernels} ({outcome.array_kernels_note}); "
                     f"results are the same, only slower")
     if case.output.figure:
-        from kindyn.output.figures import growth_figure
-
-        e = outcome.estimate
-        growth_figure(png_path, outcome.record.times, outcome.record.log_energy, e.growth_rate, e.error,
-                      e.window, f"{case.name}: {case.flow_type}, Rm = {case.Rm:.4g}, grid {list(case.box.grid)}",
-                      warning="possibly under-resolved" if outcome.resolution_warning else "")
+        growth_figure_of(png_path, case, outcome)
     checkpoint.remove()
     summary["output"] = str(nc_path)
     summary["figure"] = str(png_path) if case.output.figure else None

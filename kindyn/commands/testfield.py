@@ -13,20 +13,28 @@ the error rounded to one significant digit and the value to the same place; dire
 have no statistical error, which the report says once): the uniform-field ``alpha_ij`` (3 x 3,
 full and SOCA), the full ``alpha_ij(K)`` and ``eta_ij(K)`` blocks (3 x 2, off-diagonal terms
 included) with their in-plane means beside SOCA, the kernel fits (and which parameter each fixed),
-the closure check rounded to its error, and the cautions.
+the closure check rounded to its error, and the cautions. With ``testfield.all_directions`` it
+adds the tables of the other two averaging directions, ``beta_ijk`` (the determined components) and
+Rädler's decomposition (symmetric alpha, gamma, eta_ij, symmetric beta, delta, the determined kappa),
+each beside SOCA, and which components are not determined; findings (negative eddy or total
+diffusivity) are printed as cautions with their errors. With ``testfield.realisations = N > 1`` the
+N realisations (flow seeds s, s+1, ...) run as sweep points (``--workers``, ``--threads-per-run``, or
+``--scheduler`` for Dask; :mod:`kindyn.sweep.testfield_ensemble`) and the report shows the ensemble
+means with combined standard errors (:mod:`kindyn.testfield.ensemble`). JSON keys beyond those above:
+:mod:`kindyn.testfield.summary`.
 """
 
 from __future__ import annotations
 
-import json
 import math
 
 import numpy as np
 
-from kindyn.commands.common import (Reporter, add_case_arguments, add_quiet_argument, case_from_args, clean_number,
-                                    number_text, output_folder, with_error)
-from kindyn.testfield.calibration import SIGNS, SOCA_CAUTION, calibrate
+from kindyn.commands.common import (Reporter, add_case_arguments, add_figure_arguments, add_quiet_argument,
+                                    case_from_args, number_text, output_folder, with_error)
+from kindyn.testfield.calibration import calibrate
 from kindyn.testfield.kernels import LorentzianFit
+from kindyn.testfield.summary import file_attributes, summary_of as _summary_of
 
 HELP = "alpha and eta (beta) tensors of the flow by the test-field method, beside SOCA"
 
@@ -34,58 +42,19 @@ HELP = "alpha and eta (beta) tensors of the flow by the test-field method, besid
 def add_arguments(parser) -> None:
     add_case_arguments(parser)
     add_quiet_argument(parser)
+    add_figure_arguments(parser)
+    group = parser.add_argument_group("ensembles (testfield.realisations > 1): where the realisations run")
+    group.add_argument("--workers", type=int, default=None, metavar="W",
+                       help="local worker processes (default: cores / threads-per-run)")
+    group.add_argument("--threads-per-run", type=int, default=None, metavar="T", help="threads of each realisation")
+    group.add_argument("--scheduler", default=None, metavar="ADDRESS",
+                       help="run the realisations on this Dask scheduler (address or scheduler file)")
 
-
-def _nested(array):
-    """Nested lists with NaN/Inf as None (valid JSON)."""
-    if array is None:
-        return None
-    return [_nested(a) for a in array] if np.ndim(array) > 0 else clean_number(array)
 
 
 def summary_of(case, result) -> dict:
-    t, e = result.tensors, result.errors
-    a, h = result.horizontal()
-    a_s, h_s = result.horizontal(soca=True)
-    out = {
-        "alpha": _nested(t.get("alpha")),
-        "alpha_error": _nested(e.get("alpha")),
-        "alpha_soca": _nested(t.get("alpha_soca")),
-        "alpha_soca_error": _nested(e.get("alpha_soca")),
-        "axis": "xyz"[result.axis],
-        "mean_components": [c for i, c in enumerate("xyz") if i != result.axis],
-        "K": [float(k) for k in result.K],
-        "alpha_K": _nested(t["alpha_K"]),
-        "alpha_K_error": _nested(e["alpha_K"]),
-        "eta_K": _nested(t["eta_K"]),
-        "eta_K_error": _nested(e["eta_K"]),
-        "alpha_K_soca": _nested(t["alpha_K_soca"]),
-        "eta_K_soca": _nested(t["eta_K_soca"]),
-        "beta_K": _nested(result.beta()),
-        "alpha_horizontal": _nested(a),
-        "alpha_horizontal_error": _nested(result.horizontal_errors()[0]),
-        "eta_t": _nested(h),
-        "eta_t_error": _nested(result.horizontal_errors()[1]),
-        "alpha_horizontal_soca": _nested(a_s),
-        "eta_t_soca": _nested(h_s),
-        "kernel_fits": {k: {kk: (clean_number(vv) if isinstance(vv, float) else vv) for kk, vv in v.items()}
-                        for k, v in result.fits.items()},
-        "Rm": result.Rm,
-        "eta": result.eta,
-        "U": result.speed,
-        "k_f": result.k_f,
-        "method": result.method,
-        "converged": bool(result.converged),
-        "stop_reason": result.stop_reason,
-        "growing_test_solutions": bool(result.growing),
-        "onset_growth_rates": {k: clean_number(v) for k, v in result.onset_growth_rates.items()},
-        "solver": {k: (clean_number(v) if isinstance(v, float) else v) for k, v in result.solver.items()},
-        "closure": result.closure and {k: (clean_number(v) if isinstance(v, float) else v)
-                                       for k, v in closure_with_errors(result).items()},
-        "sign_convention": SIGNS,
-        "cautions": list(result.notes),
-    }
-    return out
+    """The JSON summary (:func:`kindyn.testfield.summary.summary_of`) with the closure check's errors."""
+    return _summary_of(case, result, closure_with_errors(result) if result.closure else None)
 
 
 def _fit_callables(fits: dict) -> dict:
@@ -216,52 +185,217 @@ def text_report(case, result) -> list[str]:
     return lines
 
 
+def _direction_tables(result, cells) -> list[str]:
+    """The planar tables of the averaging directions other than the case's (all_directions)."""
+    lines = []
+    axes = "xyz"
+    for s in result.directions:
+        if s == result.axis:
+            continue
+        perp = [axes[j] for j in range(3) if j != s]
+        a, h = result.horizontal(axis=s)
+        ea, eh = result.horizontal_errors(axis=s)
+        a_s, h_s = result.horizontal(soca=True, axis=s)
+        for n, K in enumerate(result.K):
+            rows_a = cells(result.planar("alpha_K", s)[n], result.planar("alpha_K", s, errors=True)[n])
+            rows_h = cells(result.planar("eta_K", s)[n], result.planar("eta_K", s, errors=True)[n])
+            width = max(12, *(len(c) + 2 for r in rows_a + rows_h for c in r))
+            lines.append(f"K = {K:.6g} (averages along {axes[s]}): alpha_ij(K) | eta_ij(K) (column j = "
+                         f"{', '.join(perp)})")
+            lines.append("      " + "".join(f"{'alpha_i' + j:>{width}}" for j in perp) + "   |" +
+                         "".join(f"{'eta_i' + j:>{width}}" for j in perp))
+            for r, ra, rh in zip(axes, rows_a, rows_h):
+                lines.append(f"    {r} " + "".join(f"{c:>{width}}" for c in ra) + "   |" +
+                             "".join(f"{c:>{width}}" for c in rh))
+            lines.append(f"    in-plane means: alpha = {_cell(a[n], ea[n])} (SOCA {number_text(a_s[n], 6, True)}), "
+                         f"eta_t = {_cell(h[n], eh[n])} (SOCA {number_text(h_s[n], 6, True)})")
+    return lines
+
+
+def _vector(values, errors, soca, floor: float = 0.0, soca_floor: float = 0.0) -> str:
+    def zero(v):
+        return "0" if np.isfinite(v) and abs(v) <= soca_floor else number_text(v, 4, True)
+    return "(" + ", ".join(_cell(v, e, floor) for v, e in zip(values, errors)) + ")" + \
+        " [SOCA (" + ", ".join(zero(v) for v in soca) + ")]"
+
+
+def _largest(*arrays) -> float:
+    finite = [np.abs(np.asarray(a, float))[np.isfinite(a)] for a in arrays if a is not None]
+    finite = [f for f in finite if f.size]
+    return float(max(f.max() for f in finite)) if finite else 0.0
+
+
+def full_set_report(result, cells) -> list[str]:
+    """Lines of beta_ijk and Rädler's decomposition (see :mod:`kindyn.testfield.full_set`)."""
+    from kindyn.testfield.full_set import ONE_AXIS, UNDETERMINED, determined_mask
+
+    fs, fe = result.full_set, result.full_set_errors
+    if not fs:
+        return []
+    axes = "xyz"
+    level = _residual_level(result)
+    # entries below the solver-residual level of the tensors they come from print as 0 (direct solves)
+    a_scale = _largest(result.tensors.get("alpha"), *(result.planar("alpha_K", d) for d in result.directions))
+    e_scale = _largest(*(result.planar("eta_K", d) for d in result.directions))
+    a_soca = _largest(result.tensors.get("alpha_soca"), *(result.planar("alpha_K", d, True) for d in result.directions))
+    e_soca = _largest(*(result.planar("eta_K", d, True) for d in result.directions))
+    fa, fh = level * a_scale, level * e_scale
+    # SOCA (spectral division) is exact to round-off: 1e-13 of its scale
+    fa_s, fh_s = max(level, 1e-13) * a_soca, max(level, 1e-13) * e_soca
+    lines = ["Raedler decomposition: Ebar = alpha.B + gamma x B - beta.J - delta x J - kappa.(grad B)^(s), "
+             "J = curl B (signs: JSON/netCDF sign_convention_full_set)"]
+    if "gamma" in fs:
+        rows = cells(fs["alpha_sym"], fe.get("alpha_sym"))
+        width = max(12, *(len(c) + 2 for r in rows for c in r))
+        lines.append("  symmetric alpha_ij (uniform fields, K = 0)")
+        lines += _table(rows, axes, axes, width)
+        lines.append(f"  gamma (K = 0) = {_vector(fs['gamma'], fe['gamma'], fs['gamma_soca'], fa, fa_s)}")
+    pairs = [(j, k) for j in range(3) for k in range(3) if j != k]
+    for n, K in enumerate(result.K):
+        g = [(axes[s], fs["gamma_K"][n, s], fe["gamma_K"][n, s], fs["gamma_K_soca"][n, s]) for s in result.directions]
+        lines.append(f"  K = {K:.6g}: gamma_s(K) from the averages along s: " + ", ".join(
+            f"gamma_{a} = {_cell(v, e, fa)} (SOCA {'0' if abs(vs) <= fa_s else number_text(vs, 4, True)})"
+            for a, v, e, vs in g))
+        b, be = fs["beta_ijk"][n], fe["beta_ijk"][n]
+        shown = [(j, k) for j, k in pairs if np.isfinite(b[:, j, k]).all()]
+        if shown:
+            head = [f"b_i{axes[j]}{axes[k]}" for j, k in shown]
+            rows = cells(np.array([[b[i, j, k] for j, k in shown] for i in range(3)]),
+                         np.array([[be[i, j, k] for j, k in shown] for i in range(3)]))
+            width = max(12, *(len(c) + 2 for r in rows for c in r))
+            lines.append("    beta_ijk(K), determined components (j != k; rows i):")
+            lines += _table(rows, axes, head, width)
+        if "eta_ij" in fs:
+            for key, label in (("eta_ij", "eta_il (Ebar = ... - eta . J)"), ("beta_sym", "symmetric beta_ij")):
+                rows = cells(fs[key][n], fe[key][n])
+                width = max(12, *(len(c) + 2 for r in rows for c in r))
+                lines.append(f"    {label}; SOCA trace/3 = {number_text(np.trace(fs[key + '_soca'][n]) / 3, 5, True)}")
+                lines += _table(rows, axes, axes, width)
+            lines.append("    delta (Raedler effect) = "
+                         f"{_vector(fs['delta'][n], fe['delta'][n], fs['delta_soca'][n], fh, fh_s)}")
+            kp = [(j, k) for j in range(3) for k in range(j + 1, 3)]
+            rows = cells(np.array([[fs["kappa"][n][i, j, k] for j, k in kp] for i in range(3)]),
+                         np.array([[fe["kappa"][n][i, j, k] for j, k in kp] for i in range(3)]), e_scale)
+            width = max(12, *(len(c) + 2 for r in rows for c in r))
+            lines.append("    kappa_ijk, determined components (j != k, symmetric in j, k; rows i):")
+            lines += _table(rows, axes, [f"k_i{axes[j]}{axes[k]}" for j, k in kp], width)
+        else:
+            lines.append("    delta_planar (= delta_s - (kappa_pps + kappa_qqs)/2) = " + ", ".join(
+                f"{axes[s]}: {_cell(fs['delta_planar'][n, s], fe['delta_planar'][n, s], fh)}" for s in result.directions))
+    missing = int((~determined_mask()).sum())
+    lines.append(f"not determined ({missing} components of beta_ijk, NaN in the files): " + UNDETERMINED)
+    if len(result.directions) < 3:
+        lines.append(ONE_AXIS)
+    return lines
+
+
+def finding_lines(result) -> list[str]:
+    out = []
+    for f in result.findings:
+        err = f" +- {number_text(f['error'], 2)}" if f.get("error") is not None else " (no statistical error)"
+        state = "significant" if f["significant"] else "within 2 errors of zero"
+        out.append(f"finding: {f['text']}{err} ({state})")
+    return out
+
+
+def _figure(case, result, path) -> None:
+    from kindyn.output.figures import FigureStyle
+    from kindyn.output.figures_testfield import coefficients_versus_K
+
+    note = "" if result.converged else f"NOT converged: {result.stop_reason}"
+    directions = {}
+    for s in result.directions:
+        a, h = result.horizontal(axis=s)
+        a_s, h_s = result.horizontal(soca=True, axis=s)
+        ea, eh = result.horizontal_errors(axis=s)
+        directions["xyz"[s]] = (a, ea, h, eh, a_s, h_s)
+    a, ea, h, eh, a_s, h_s = directions["xyz"[result.axis]]
+    coefficients_versus_K(path, result.K, a, ea, h, eh, a_s, h_s,
+                          f"{case.name}: {case.flow_type}, Rm = {case.Rm:.4g}, average over planes normal "
+                          f"to {'xyz'[result.axis]}", fits=_fit_callables(result.fits), note=note,
+                          alpha_uniform=(result.uniform_alpha(), result.uniform_alpha(soca=True)),
+                          other_directions={k: v for k, v in directions.items() if k != "xyz"[result.axis]},
+                          gamma=(result.full_set["gamma_K"], result.full_set_errors.get("gamma_K"),
+                                 result.full_set.get("gamma_K_soca")) if "gamma_K" in result.full_set else None,
+                          converged=result.converged, style=FigureStyle.from_output(case.output))
+
+
+def _ensemble(case, plan, args, report, out):
+    """Calibrate the realisations through the sweep pools and combine them (module docstring)."""
+    from kindyn.sweep.testfield_ensemble import run_ensemble
+    from kindyn.testfield.calibration import TestFieldResult
+    from kindyn.testfield.ensemble import ensemble_result
+    from kindyn.commands.common import figure_overrides
+
+    first = int(case.flow.seed)
+    text = case.text
+    members = run_ensemble(case.path, text, [*args.overrides, *figure_overrides(args)], plan.realisations, first,
+                           out / f"{case.name}-realisations", workers=args.workers, threads=args.threads_per_run,
+                           scheduler=args.scheduler, say=report.progress)
+    base = TestFieldResult(plan.axis, plan.modes, np.array(plan.wavenumbers), plan.method, case.Rm, case.eta,
+                           case.flow.speed, case.flow.wavenumber, False, "", directions=plan.directions)
+    result = ensemble_result(base, members, [m["seed"] for m in members])
+    if plan.closure:
+        result.notes.append("closure check skipped for an ensemble (testfield.closure applies to one realisation)")
+    return result
+
+
 def execute(args) -> int:
     report = Reporter("testfield", args)
     case = case_from_args(args)
+    from kindyn.output.figures import FigureStyle
     from kindyn.testfield.settings import plan_from_case
 
-    plan_from_case(case)  # every check that needs the box, before any output folder is made
+    plan = plan_from_case(case)  # every check that needs the box, before any output folder is made
     out = output_folder(args)
-    nc_path, png_path = out / f"{case.name}-testfield.nc", out / f"{case.name}-testfield.png"
+    nc_path = out / f"{case.name}-testfield.nc"
+    png_path = FigureStyle.from_output(case.output).path(out, f"{case.name}-testfield")
     progress = None if report.quiet else (lambda text: report.progress("  " + text))
     report.progress(f"kindyn testfield {case.path}: {case.flow_type} flow, grid {list(case.box.grid)}, "
-                    f"Rm = {case.Rm:.6g} (eta = {case.eta:.6g})")
-    result = calibrate(case, progress=progress, direct_run=direct_growth_run)
+                    f"Rm = {case.Rm:.6g} (eta = {case.eta:.6g})"
+                    + (f", {plan.realisations} realisations" if plan.realisations > 1 else ""))
+    if plan.realisations > 1:
+        result = _ensemble(case, plan, args, report, out)
+    else:
+        result = calibrate(case, progress=progress, direct_run=direct_growth_run)
+    from kindyn.commands.processes import launched_rank
+
+    if launched_rank() != 0:  # one of several MPI processes, not the first: that one writes and reports
+        return 0
     summary = summary_of(case, result)
-    from kindyn.output.testfield_file import result_arrays, write_testfield_file
+    from kindyn.output.testfield_file import ensemble_variables, result_variables, write_testfield_file
 
     cautions = list(result.notes)
     if result.closure and result.closure.get("caution"):
         cautions.append(f"closure check: {result.closure['caution']}")
+    cautions += finding_lines(result)
     summary["cautions"] = cautions
-    attributes = {
-        "sign_convention": SIGNS,
-        "averaging_axis": "xyz"[result.axis],
-        "caution": "; ".join(cautions),
-        "soca_caution": SOCA_CAUTION,
-        "reset_caution": "above dynamo onset, coefficients of time-stepped test problems depend on the reset interval",
-        "solver": json.dumps(summary["solver"]),
-        "kernel_fits": json.dumps(summary["kernel_fits"]),
-        "closure": json.dumps(summary["closure"]) if summary["closure"] else "",
-        "onset_growth_rates": json.dumps(summary["onset_growth_rates"]),
-    }
-    write_testfield_file(nc_path, case, summary, result_arrays(result), attributes)
+    variables = result_variables(result)
+    if result.members:
+        variables.update(ensemble_variables([m["tensors"] for m in result.members], result.ensemble["seeds"]))
+        summary["ensemble"]["members"] = [{"seed": m["seed"], "output": m["output"], "converged": m["converged"]}
+                                          for m in result.members]
+    write_testfield_file(nc_path, case, summary, variables, file_attributes(result, summary, cautions), result.K,
+                         summary["mean_components"], command=report.command_line,
+                         members=len(result.members) if result.members else None)
     if case.output.figure:
-        from kindyn.output.figures_testfield import coefficients_versus_K
-
-        a, h = result.horizontal()
-        a_s, h_s = result.horizontal(soca=True)
-        ea, eh = result.horizontal_errors()
-        note = "" if result.converged else f"NOT converged: {result.stop_reason}"
-        coefficients_versus_K(png_path, result.K, a, ea, h, eh, a_s, h_s,
-                              f"{case.name}: {case.flow_type}, Rm = {case.Rm:.4g}, average over planes normal "
-                              f"to {'xyz'[result.axis]}", fits=_fit_callables(result.fits), note=note,
-                              alpha_uniform=(result.uniform_alpha(), result.uniform_alpha(soca=True)))
+        _figure(case, result, png_path)
     summary["output"] = str(nc_path)
     summary["figure"] = str(png_path) if case.output.figure else None
-    for line in text_report(case, result):
+    level = _residual_level(result)
+
+    def cells(values, errors, scale=None):
+        values = np.asarray(values, float)
+        errors = np.full_like(values, np.nan) if errors is None else np.asarray(errors, float)
+        finite = np.abs(values)[np.isfinite(values)]
+        floor = level * (scale if scale is not None else float(finite.max()) if finite.size else 0.0)
+        return [[_cell(v, er, floor) for v, er in zip(vr, err)] for vr, err in zip(values, errors)]
+
+    for line in text_report(case, result) + _direction_tables(result, cells) + full_set_report(result, cells):
         report.result(line)
+    if result.ensemble:
+        report.result(f"ensemble: {result.ensemble['count']} realisations (flow seeds {result.ensemble['seeds'][0]} .. "
+                      f"{result.ensemble['seeds'][-1]}); {result.ensemble['combination']}")
     for caution in cautions:
         report.caution(caution)
     report.result(f"wrote {nc_path}" + (f" and {png_path}" if case.output.figure else ""))

@@ -61,6 +61,11 @@ SPECTRUM = Measure("magnetic_energy_spectrum", "shell spectrum of the final (uni
                    lambda layout, b_hat: shell_spectrum(b_hat, layout)[1], ("wavenumber",))
 
 
-def run_series(z_independent: bool) -> tuple[Measure, ...]:
-    """The intensive quantities a growth run records at every sample (registration: one line each)."""
-    return (cutoff_measure((0, 1) if z_independent else (0, 1, 2)), RELATIVE_DIVERGENCE)
+def run_series(axes) -> tuple[Measure, ...]:
+    """The intensive quantities a growth run records at every sample (registration: one line each).
+
+    ``axes``: the axes whose cut-off counts (:func:`kindyn.diagnostics.resolution.counted_axes`); a
+    bool is read as ``z_independent`` (``True``: x and y only)."""
+    if isinstance(axes, (bool, np.bool_)):
+        axes = (0, 1) if axes else (0, 1, 2)
+    return (cutoff_measure(tuple(axes)), RELATIVE_DIVERGENCE)

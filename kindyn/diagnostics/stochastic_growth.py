@@ -83,8 +83,9 @@ def estimate_stochastic_growth(times, log_energy, tolerance: float, renewal_time
         note = f"uncertainty {error:.3g} above tolerance {tolerance:.3g}"
     else:
         note = f"stochastic estimate: block-averaged ln E increments, {blocks} blocks"
+    # a standard error from batch means is already a calibrated uncertainty (Flyvbjerg & Petersen)
     return GrowthEstimate(gamma, error, math.nan, converged, math.nan, (float(tw[0]), float(tw[-1])),
-                          int(increments.size + 1), note)
+                          int(increments.size + 1), note, uncertainty=error, fit_error=error)
 
 
 def estimate_for_flow(times, log_energy, tolerance: float, flow) -> GrowthEstimate:

@@ -284,7 +284,8 @@ class CallableFlow:
         if not isinstance(steady, bool):
             raise ParameterError("steady", steady, "true or false")
         divergence, tolerance, mean_flow, period, aperiodic = _common(params)
-        function = load_function(spec, case_dir)
+        # a Python callable object itself (kindyn.load_case(..., flow=f)); text names are imported
+        function = spec if callable(spec) else load_function(spec, case_dir)
 
         def raw(x, y, z, t):
             return function(x, y, z, t, **values)

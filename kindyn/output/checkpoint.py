@@ -39,7 +39,8 @@ class Checkpoint:
                 ds.createVariable(name, "f8", (name,))[...] = values
             for name, values in rec.series.items():  # the measures of every sample (one per time)
                 ds.createVariable(f"series_{name}", "f8", ("times",))[...] = np.asarray(values, float)
-            probes = np.asarray(rec.probes, float).reshape(len(rec.probes), -1)
+            probes = np.asarray(rec.probes, float)
+            probes = probes.reshape(len(rec.probes), -1) if probes.size else np.zeros((len(rec.probes), 0))
             ds.createDimension("probe", probes.shape[1])
             ds.createVariable("probes", "f8", ("times", "probe"))[...] = probes
 

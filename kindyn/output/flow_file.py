@@ -20,13 +20,14 @@ from kindyn.output.netcdf import provenance_attributes, add_grid, add_variable, 
 
 
 def write_flow_file(path, case, summary: dict, u, wavenumbers, energy_spectrum, helicity_spectrum,
-                    time: float = 0.0) -> None:
-    """Write the flow record atomically; ``u`` is the velocity ``(3, nx, ny, nz)`` at ``time``."""
+                    time: float = 0.0, command=None) -> None:
+    """Write the flow record atomically; ``u`` is the velocity ``(3, nx, ny, nz)`` at ``time``
+    (``command``: what wrote it, default the process's command line)."""
     scalars = {f"result_{k}": v for k, v in summary.items() if not isinstance(v, (dict, list))}
     scalars["cautions"] = "; ".join(summary.get("cautions", [])) or "none"
     with atomic_dataset(path) as ds:
         set_attributes(ds, {
-            **provenance_attributes(case, f"kindyn flow diagnostics: {case.name}"),
+            **provenance_attributes(case, f"kindyn flow diagnostics: {case.name}", command),
             "snapshot_time": float(time),
             **scalars,
             "U": float(case.flow.speed),

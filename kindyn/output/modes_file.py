@@ -26,15 +26,16 @@ from __future__ import annotations
 
 import numpy as np
 
-from kindyn.output.netcdf import provenance_attributes, add_grid, add_variable, atomic_dataset, set_attributes
+from kindyn.output.netcdf import add_grid, add_index, add_variable, atomic_dataset, provenance_attributes, set_attributes
 
 
-def write_modes_file(path, case, outcome, summary: dict, cautions: list[str]) -> None:
-    """Write the eigen-solve ``outcome`` (a :class:`kindyn.eigen.solve.ModesOutcome`) atomically."""
+def write_modes_file(path, case, outcome, summary: dict, cautions: list[str], command=None) -> None:
+    """Write the eigen-solve ``outcome`` (a :class:`kindyn.eigen.solve.ModesOutcome`) atomically
+    (``command``: what wrote it, default the process's command line)."""
     modes = outcome.modes
     with atomic_dataset(path) as ds:
         set_attributes(ds, {
-            **provenance_attributes(case, f"kindyn eigenmodes: {case.name}"),
+            **provenance_attributes(case, f"kindyn eigenmodes: {case.name}", command),
             "method": outcome.method,
             "flow_kind": "time-periodic (Floquet multipliers of the period map)" if outcome.periodic else "steady",
             "frequency_modulus": outcome.frequency_modulus if outcome.frequency_modulus else "",
@@ -47,9 +48,7 @@ def write_modes_file(path, case, outcome, summary: dict, cautions: list[str]) ->
             "caution": " ".join(cautions),
             **{f"result_{k}": v for k, v in summary.items() if not isinstance(v, (list, dict))},
         })
-        ds.createDimension("mode", len(modes))
-        add_variable(ds, "mode", ("mode",), np.arange(len(modes)), dtype="i4",
-                     long_name="mode index (largest growth rate first)")
+        add_index(ds, "mode", len(modes), "mode index (largest growth rate first)")
         add_variable(ds, "growth_rate", ("mode",), [m.growth_rate for m in modes],
                      long_name="growth rate gamma = Re p of the field amplitude")
         add_variable(ds, "frequency", ("mode",), [m.frequency for m in modes],
@@ -68,7 +67,7 @@ def write_modes_file(path, case, outcome, summary: dict, cautions: list[str]) ->
         fields = outcome.fields
         if not fields:
             return
-        ds.createDimension("field", len(fields))
+        add_index(ds, "field", len(fields), "eigenfield index (the eigenfield of mode number field)")
         if outcome.method == "box":
             add_grid(ds, case.box)
             dims = ("field", "x", "y", "z")

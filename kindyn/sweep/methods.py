@@ -48,6 +48,7 @@ def modes_point(case, output: Path, checkpoint: Path) -> dict:
 METHODS: dict = {
     "growth": growth_point,
     "modes": modes_point,
+    "testfield": "kindyn.sweep.testfield_ensemble:testfield_point",  # test-field ensembles (realisations)
 }
 
 

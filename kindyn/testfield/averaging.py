@@ -6,13 +6,32 @@ periods for a periodic flow, so averages are over whole periods). In each block 
 either
 
 * ``"mean"``: the time average over the block (rectangle rule on ``samples_per_block`` equally
-  spaced samples ``t_0 + j dt_s``, spectrally accurate for periodic signals), or
+  spaced samples ``t_0 + j dt_s``, spectrally accurate for periodic signals; for renovating flows
+  the piecewise quadrature below), or
 * ``"end"``: the value at the block end (a steady flow without resets: the test solutions approach
   the steady solution, and the coefficients converge to its values).
 
+**Renovating flows** (constant between renewals at multiples of ``tau``; blocks are whole renewal
+intervals) make the EMF jump at every renewal: the new flow meets a field built by the old one.
+A left-endpoint rectangle rule on such a sawtooth is biased by ``-(E(tau-) - E(0+))/(2n)`` (``n``
+samples per interval): about -3 % at ``n = 32`` and -12 % at ``n = 8``. Each renewal interval is
+therefore integrated on its own, with the one-sided limits at its ends: ``E(0+)`` (the sample at
+the renewal, with the new flow: renovating flows are right-continuous) and ``E(tau-)`` (the field at
+the end of the interval with the flow of that interval, evaluated at the midpoint of its last
+step), by composite Simpson on the ``n + 1`` values (Simpson and one 3/8 panel for odd ``n >= 3``,
+the trapezoid for ``n = 1``): exact for polynomials of degree 3 on each interval, error
+``O((tau/n)^4)`` for a piecewise-smooth EMF.
+
 Coefficients are linear in the EMF, so the coefficients of a block mean are the means of the
 coefficients. Blocks that start less than ``settle_time`` after the start or a reset are
-**invalid** (the test solutions are still building up) and left out.
+**invalid** (the test solutions are still building up) and left out. Default settle time:
+``5/(eta k_f^2)``; with resets at most half the reset interval (a reset interval of one block is
+refused: every block would start at a reset); for a renovating flow with resets (the resets fall
+on renewals) zero: the
+field left from earlier intervals is uncorrelated with the flow of a new one, so its contribution
+to the mean EMF averages to zero and a test solution restarted from zero at a renewal has the
+same mean EMF as one that was not (no settling is needed, and with ``reset_interval = tau`` every
+interval is a complete, independent sample).
 
 **Resets**: every ``reset_blocks`` blocks all test solutions are set back to zero, so that a
 growing eigenmode of the homogeneous problem (above dynamo onset) cannot swamp them. Above onset
@@ -39,10 +58,14 @@ from dataclasses import dataclass, field
 
 import numpy as np
 
+from kindyn.assemble import check_stability
 from kindyn.diagnostics.batch_means import batch_means_error
-from kindyn.errors import NumericalError
+from kindyn.diagnostics.resolution import counted_axes
+from kindyn.diagnostics.spectra import cutoff_ratio
+from kindyn.errors import NumericalError, ParameterError
+from kindyn.stepping import TABLEAUX
 from kindyn.testfield.problems import TestProblems
-from kindyn.timestep import cfl_time_step, flow_time_period
+from kindyn.timestep import advection_rate, diffusion_number, flow_time_period, max_speed
 
 MIN_MEAN_BLOCKS = 4
 RUNAWAY_LOG_ENERGY = 20.0  # energy grown by e^20 (5e8) within one cycle
@@ -64,17 +87,21 @@ class TimeSettings:
     min_time: float
     max_time: float
     mode: str
+    samples_per_renewal: int | None = None  # renovating flows: samples per renewal interval (piecewise quadrature)
 
     @property
     def reset_interval(self) -> float | None:
         return None if self.reset_blocks is None else self.reset_blocks * self.block_length
 
 
-def time_settings(flow, layout, eta: float, plan, cfl: float, time_step: float | None) -> TimeSettings:
-    """Choose the step and the blocks (see module docstring and ``[testfield]`` keys)."""
+def time_settings(flow, layout, eta: float, plan, cfl: float, time_step: float | None, scheme: str = "rk4",
+                  file: str = "") -> TimeSettings:
+    """Choose the step and the blocks (see module docstring and ``[testfield]`` keys); refuse a step
+    beyond the scheme's stability limit (``scheme``, ``file`` name them in the message)."""
     period = flow_time_period(flow)
     turnover = 1.0 / (flow.speed * flow.wavenumber)
-    dt = time_step if time_step else cfl_time_step(flow, layout, cfl)
+    rate = advection_rate(flow, layout)
+    dt = time_step if time_step else (cfl / rate if rate > 0 else math.inf)
     if not math.isfinite(dt):
         dt = 0.1 * turnover
     if period:
@@ -86,16 +113,51 @@ def time_settings(flow, layout, eta: float, plan, cfl: float, time_step: float |
         samples = plan.samples_per_period
     steps_per_sample = max(1, math.ceil(block / samples / dt))
     dt = block / (samples * steps_per_sample)
+    key, value = ("run.time_step", time_step) if time_step else ("run.cfl", cfl)
+    check_stability(scheme, dt * rate, file, key, value, rate,
+                    damping=diffusion_number(eta, dt, max_speed(flow, layout, period)))
     reset_blocks = None if plan.reset_interval is None else max(1, math.ceil(plan.reset_interval / block - 1e-9))
+    renovating = bool(getattr(flow, "renewal_time", None))
     settle = plan.settle_time
     if settle is None:
         settle = SETTLE_DIFFUSION_TIMES / (eta * flow.wavenumber ** 2)
         if reset_blocks is not None:
-            settle = min(settle, 0.5 * reset_blocks * block)
+            settle = 0.0 if renovating else min(settle, 0.5 * reset_blocks * block)
+    if reset_blocks is not None and settle > (reset_blocks - 1) * block + 1e-9 * block:
+        interval = reset_blocks * block
+        if plan.settle_time is None:
+            raise ParameterError("testfield.reset_interval", plan.reset_interval,
+                                 f"at least two averaging blocks ({2 * block:.6g}): the test solutions restart from "
+                                 f"zero at every reset and need a block to settle (or give testfield.settle_time = 0 "
+                                 "to average from the reset on)")
+        raise ParameterError("testfield.settle_time", plan.settle_time,
+                             f"less than the reset interval minus one block ({interval - block:.6g}): otherwise no "
+                             "averaging block is valid")
     max_time = plan.max_time or settle + DEFAULT_BLOCKS * block
     mode = "end" if (flow.steady and reset_blocks is None) else "mean"
+    per_renewal = None
+    if renovating and mode == "mean":
+        per_renewal = samples // max(1, round(block / flow.renewal_time))
     return TimeSettings(dt, steps_per_sample, samples, block, reset_blocks, float(settle), plan.min_time,
-                        float(max_time), mode)
+                        float(max_time), mode, per_renewal)
+
+
+def interval_weights(n: int) -> np.ndarray:
+    """Quadrature weights (summing to 1) on ``n + 1`` equally spaced values of one interval, ends
+    included: composite Simpson for even ``n``; Simpson then one 3/8 panel for odd ``n >= 3``; the
+    trapezoid for ``n = 1``. Exact for cubic polynomials when ``n >= 2``."""
+    if n < 1:
+        raise ValueError("an interval needs at least one panel")
+    w = np.zeros(n + 1)
+    if n == 1:
+        w[:] = 0.5
+        return w
+    simpson = n if n % 2 == 0 else n - 3
+    for i in range(0, simpson, 2):
+        w[i:i + 3] += np.array([1.0, 4.0, 1.0]) / 3.0
+    if simpson < n:
+        w[simpson:simpson + 4] += np.array([3.0, 9.0, 9.0, 3.0]) / 8.0
+    return w / n
 
 
 class ProblemGroup:
@@ -149,6 +211,7 @@ class TimeRecord:
     cycle: list = field(default_factory=list)
     log_energy: list = field(default_factory=list)
     values: dict = field(default_factory=dict)
+    cutoff_ratio: list = field(default_factory=list)  # largest cut-off ratio of the full test solutions
 
     def arrays(self, name: str) -> np.ndarray:
         return np.asarray(self.values[name])
@@ -167,6 +230,7 @@ class TimeOutcome:
     record: TimeRecord
     settings: TimeSettings
     wall_seconds: float
+    cutoff_ratio: float = math.nan  # settled cut-off ratio of the full test solutions (settled_cutoff_ratio)
 
 
 def _estimate(record: TimeRecord, mode: str):
@@ -199,35 +263,70 @@ def _cycle_growth(record: TimeRecord) -> float:
     return 0.5 * float(slope)
 
 
-def integrate(groups, settings: TimeSettings, scales: dict, tolerance: float, progress=None) -> TimeOutcome:
+def solutions_cutoff_ratio(layout, states: np.ndarray, axes=(0, 1, 2)) -> float:
+    """The largest :func:`~kindyn.diagnostics.spectra.cutoff_ratio` over the stacked test solutions
+    ``(3 n, ...)`` (``0`` for solutions that are still zero)."""
+    states = np.asarray(states)
+    return max((cutoff_ratio(states[3 * i:3 * i + 3], layout, axes) for i in range(states.shape[0] // 3)),
+               default=0.0)
+
+
+def settled_cutoff_ratio(record: TimeRecord) -> float:
+    """Mean cut-off ratio over the second half of the valid blocks (as a run decides its flag:
+    a property of the solutions, not of the last sample)."""
+    values = [r for r, v in zip(record.cutoff_ratio, record.valid) if v]
+    if not values:
+        values = list(record.cutoff_ratio)
+    if not values:
+        return math.nan
+    return float(np.mean(values[len(values) // 2:]))
+
+
+def integrate(groups, settings: TimeSettings, scales: dict, tolerance: float, progress=None,
+              axes=None) -> TimeOutcome:
     """Step all ``groups`` until the coefficients converge or a guard stops (see module docstring).
 
     ``scales`` maps ``"alpha"``/``"eta"`` to the unit of the tolerance (``U`` and ``U/k_f``).
-    ``progress(t, worst)`` is called now and then with the worst error/tolerance ratio.
+    ``progress(t, worst)`` is called now and then with the worst error/tolerance ratio; ``axes``:
+    the axes whose cut-off counts for the resolution check of the test solutions (default: all but
+    those along which the flow is uniform).
     """
     s = settings
+    if axes is None:
+        axes = counted_axes(groups[0].operators[0].flow, groups[0].layout)
     record, t, step, cycle, last_reset = TimeRecord(), 0.0, 0, 0, 0.0
     growing, growth_rate, converged, stop_reason = False, math.nan, False, ""
     started, last_report = wallclock.time(), wallclock.time()
     min_valid = 2 if s.mode == "end" else MIN_MEAN_BLOCKS
     cycle_min_log_energy = math.inf
     estimates, errors = {}, {}
+    n = s.samples_per_renewal
+    weights = interval_weights(n) if n else None
+    intervals = s.samples_per_block // n if n else 1
+
+    def accumulate(sums, sample, w):
+        scaled = [(w * a, w * b) for a, b in sample]
+        return scaled if sums is None else [(a[0] + b[0], a[1] + b[1]) for a, b in zip(sums, scaled)]
+
     while True:
         block_start = t
         sums = None
-        for _ in range(s.samples_per_block):
+        for j in range(s.samples_per_block):
             if s.mode == "mean":
-                sample = [g.emf(t) for g in groups]
-                sums = sample if sums is None else [(a[0] + b[0], a[1] + b[1]) for a, b in zip(sums, sample)]
+                # the sample at a renewal is the right limit E(0+): the flow is right-continuous
+                w = 1.0 / s.samples_per_block if weights is None else weights[j % n] / intervals
+                sums = accumulate(sums, [g.emf(t) for g in groups], w)
             for _ in range(s.steps_per_sample):
                 for g in groups:
                     g.step(t, s.dt)
                 step += 1
                 t = step * s.dt
+            if weights is not None and (j + 1) % n == 0:  # end of a renewal interval: the left limit E(tau-)
+                sums = accumulate(sums, [g.emf(t - 0.5 * s.dt) for g in groups], weights[n] / intervals)
         if s.mode == "end":
             means = [g.emf(t) for g in groups]
         else:
-            means = [(a / s.samples_per_block, b / s.samples_per_block) for a, b in sums]
+            means = sums
         values = {}
         for g, (full, soca) in zip(groups, means):
             values.update(g.coefficients(full, soca))
@@ -235,13 +334,13 @@ def integrate(groups, settings: TimeSettings, scales: dict, tolerance: float, pr
             record.values.setdefault(name, []).append(value)
         energy = sum(g.energy() for g in groups)
         if not math.isfinite(energy):
-            raise NumericalError(f"test-field solutions became {energy} at step {step}, t = {t:.6g}; "
-                                 "reduce run.cfl or set testfield.reset_interval")
+            raise NumericalError(_non_finite_message(groups, record, s, step, t, energy))
         log_energy = math.log(energy) if energy > 0 else -math.inf
         record.end_times.append(t)
         record.valid.append(block_start - last_reset >= s.settle_time - 1e-9 * max(1.0, s.settle_time))
         record.cycle.append(cycle)
         record.log_energy.append(log_energy)
+        record.cutoff_ratio.append(max(solutions_cutoff_ratio(g.layout, g.states[0], axes) for g in groups))
         if record.valid[-1]:
             cycle_min_log_energy = min(cycle_min_log_energy, log_energy)
         rate = _cycle_growth(record)
@@ -280,4 +379,28 @@ def integrate(groups, settings: TimeSettings, scales: dict, tolerance: float, pr
         estimates = {k: np.full_like(np.asarray(v[-1], float), np.nan) for k, v in record.values.items()}
         errors = {k: np.full_like(v, np.inf) for k, v in estimates.items()}
     return TimeOutcome(estimates, errors, converged, stop_reason, t, step, growing, growth_rate, record, s,
-                       wallclock.time() - started)
+                       wallclock.time() - started, settled_cutoff_ratio(record))
+
+
+def _non_finite_message(groups, record: TimeRecord, s: TimeSettings, step: int, t: float, energy: float) -> str:
+    """What became non-finite and where it came from: the flow, a growing mode, or the state."""
+    layout, flow = groups[0].layout, groups[0].operators[0].flow
+    renovating = bool(getattr(flow, "renewal_time", None))
+    start = step - s.samples_per_block * s.steps_per_sample
+    for n in range(max(0, start), step):
+        for c in ((0.5,) if renovating else (0.0, 0.5, 1.0)):
+            time = (n + c) * s.dt
+            u = layout.sample_velocity(flow, time)
+            bad = int(layout.total(np.count_nonzero(~np.isfinite(u))))
+            if bad:
+                return (f"the flow's velocity is not finite at t = {time:.6g} ({bad} values): the test-field "
+                        f"solutions became {energy} at step {step}, t = {t:.6g}, because the flow did; check the "
+                        "flow's definition near that time")
+    finite = [e for e in record.log_energy if math.isfinite(e)]
+    if len(finite) >= 2 and finite[-1] - finite[0] > RUNAWAY_LOG_ENERGY:
+        return (f"the test-field solutions grew without bound (ln E from {finite[0]:.4g} to {finite[-1]:.4g}) and became "
+                f"{energy} at step {step}, t = {t:.6g}: a growing mode of the homogeneous problem (dynamo above "
+                "onset); set testfield.reset_interval")
+    return (f"the test-field solutions became {energy} at step {step}, t = {t:.6g} while the flow stayed finite and "
+            "the step is within the stability limit: the state is corrupt (an overflow or a fault); this is a bug "
+            "to report, with the case file")

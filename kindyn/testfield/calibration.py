@@ -6,7 +6,10 @@ Data flow: case -> :class:`~kindyn.testfield.settings.TestFieldPlan` -> direct s
 
 Array layout of the result: ``alpha`` is ``3 x 3`` (row = EMF component i, column = uniform test
 field j); ``alpha_K``/``eta_K`` are ``(nK, 3, 2)`` (row i = x, y, z; column = the two components
-perpendicular to the averaging axis, in x, y, z order). Errors have the same shapes: standard
+perpendicular to the averaging axis, in x, y, z order). With ``all_directions`` the other two
+averaging directions are ``alpha_K_x``, ``eta_K_y``, ... (same shapes; names from
+:func:`~kindyn.testfield.full_set.planar_name`), and :attr:`TestFieldResult.full_set` holds
+``beta_ijk`` and Rädler's decomposition (:mod:`.full_set`). Errors have the same shapes: standard
 errors from block averages (time-dependent flows), the last change (time-stepped steady flows),
 or ``nan`` for direct steady solves (exact up to the solver residual, which is reported).
 """
@@ -24,6 +27,7 @@ from kindyn.testfield.averaging import ProblemGroup, integrate, time_settings
 from kindyn.testfield.extraction import (alpha_from_uniform, beta_from_eta, coefficients_from_profiles,
                                          horizontal_parts, planar_tests)
 from kindyn.testfield.fields import uniform_test_fields
+from kindyn.testfield.full_set import block_estimates, derive_both, findings, planar_name
 from kindyn.testfield.kernels import fit_lorentzian
 from kindyn.array_kernels import make_kernels
 from kindyn.assemble import make_box_layout, transform_settings
@@ -64,21 +68,39 @@ class TestFieldResult:
     closure: dict | None = None
     growing: bool = False
     time_outcome: object = None
+    directions: tuple = ()
+    full_set: dict = field(default_factory=dict)
+    full_set_errors: dict = field(default_factory=dict)
+    findings: list = field(default_factory=list)
+    ensemble: dict | None = None  # ensembles (kindyn.testfield.ensemble): count, seeds, spreads
+    members: list | None = None  # ensembles: the realisations' tensors and errors
 
     __test__ = False
 
-    def horizontal(self, soca: bool = False) -> tuple[np.ndarray, np.ndarray]:
+    def __post_init__(self):
+        if not self.directions:
+            self.directions = (self.axis,)
+
+    def planar_key(self, base: str, axis: int | None = None, soca: bool = False) -> str:
+        """The name of the planar tensor ``base`` (``"alpha_K"``, ``"eta_K"``) along ``axis``."""
+        return planar_name(base, self.axis if axis is None else axis, self.axis, soca)
+
+    def planar(self, base: str, axis: int | None = None, soca: bool = False, errors: bool = False) -> np.ndarray:
+        """``alpha_K`` or ``eta_K`` (``(nK, 3, 2)``) of the averages along ``axis`` (default: the case's)."""
+        return (self.errors if errors else self.tensors)[self.planar_key(base, axis, soca)]
+
+    def horizontal(self, soca: bool = False, axis: int | None = None) -> tuple[np.ndarray, np.ndarray]:
         """``alpha(K)`` and ``eta_t(K)``: in-plane means of the diagonals (arrays of length nK)."""
-        sfx = "_soca" if soca else ""
-        pairs = [horizontal_parts(a, e, self.axis) for a, e in zip(self.tensors["alpha_K" + sfx],
-                                                                     self.tensors["eta_K" + sfx])]
+        s = self.axis if axis is None else axis
+        pairs = [horizontal_parts(a, e, s) for a, e in zip(self.planar("alpha_K", s, soca),
+                                                             self.planar("eta_K", s, soca))]
         return np.array([p[0] for p in pairs]), np.array([p[1] for p in pairs])
 
-    def horizontal_errors(self, soca: bool = False) -> tuple[np.ndarray, np.ndarray]:
+    def horizontal_errors(self, soca: bool = False, axis: int | None = None) -> tuple[np.ndarray, np.ndarray]:
         """Errors of :meth:`horizontal` (half the sum of the two diagonal errors: an upper bound)."""
-        sfx = "_soca" if soca else ""
-        pairs = [horizontal_parts(a, e, self.axis) for a, e in zip(self.errors["alpha_K" + sfx],
-                                                                     self.errors["eta_K" + sfx])]
+        s = self.axis if axis is None else axis
+        pairs = [horizontal_parts(a, e, s) for a, e in zip(self.planar("alpha_K", s, soca, errors=True),
+                                                             self.planar("eta_K", s, soca, errors=True))]
         return np.array([p[0] for p in pairs]), np.array([p[1] for p in pairs])
 
     def uniform_alpha(self, soca: bool = False) -> float | None:
@@ -91,9 +113,10 @@ class TestFieldResult:
         value = 0.5 * float(alpha[perp[0], perp[0]] + alpha[perp[1], perp[1]])
         return value if math.isfinite(value) else None
 
-    def beta(self, soca: bool = False) -> np.ndarray:
-        sfx = "_soca" if soca else ""
-        return np.stack([beta_from_eta(e, self.axis) for e in self.tensors["eta_K" + sfx]])
+    def beta(self, soca: bool = False, axis: int | None = None) -> np.ndarray:
+        """Planar ``beta_ijs`` ``(nK, 3, 2)`` along ``axis`` (default: the case's)."""
+        s = self.axis if axis is None else axis
+        return np.stack([beta_from_eta(e, s) for e in self.planar("eta_K", s, soca)])
 
 
 def _layout(case) -> BoxLayout:
@@ -101,18 +124,27 @@ def _layout(case) -> BoxLayout:
     return make_box_layout(case.box, transform_settings(case.numerics, precision="double"), case.numerics)
 
 
-def _planar_coefficients(groups_of_fields, s):
+def _planar_coefficients(groups_of_fields, s, axis: int | None = None, primary: int | None = None):
+    """``coefficients(full, soca) -> {alpha_K.., eta_K..}`` for the planar tests along ``axis`` (names of
+    :func:`planar_name`; ``axis = primary`` or None: ``alpha_K``, ``eta_K``)."""
     def coefficients(full, soca):
         out = {}
-        for name, emf in (("", full), ("_soca", soca)):
+        for flag, emf in ((False, full), (True, soca)):
             alphas, etas = [], []
             for g, fields in enumerate(groups_of_fields):
                 a, e = coefficients_from_profiles(emf[4 * g:4 * g + 4], fields, s)
                 alphas.append(a)
                 etas.append(e)
-            out["alpha_K" + name], out["eta_K" + name] = np.stack(alphas), np.stack(etas)
+            out[planar_name("alpha_K", axis, primary, flag)] = np.stack(alphas)
+            out[planar_name("eta_K", axis, primary, flag)] = np.stack(etas)
         return out
     return coefficients
+
+
+def _planar_jobs(plan):
+    """``(name, axis, field sets)`` of every averaging direction (the case's axis is ``"planar"``)."""
+    return [("planar" if d == plan.axis else f"planar_{'xyz'[d]}", d,
+             planar_tests(d, plan.modes_along(d), plan.wavenumbers)) for d in plan.directions]
 
 
 def _uniform_coefficients(full, soca):
@@ -126,7 +158,7 @@ def _direct(case, plan, result: TestFieldResult, progress) -> None:
     jobs = []
     if plan.uniform:
         jobs.append(("uniform", None, [uniform_test_fields()]))
-    jobs.append(("planar", plan.axis, planar_tests(plan.axis, plan.modes, plan.wavenumbers)))
+    jobs += _planar_jobs(plan)
     if plan.onset_check:
         for name, axis, field_sets in jobs:
             sources = []
@@ -159,7 +191,7 @@ def _direct(case, plan, result: TestFieldResult, progress) -> None:
         if name == "uniform":
             values = _uniform_coefficients(full, soca)
         else:
-            values = _planar_coefficients(field_sets, box.axis(plan.axis))(full, soca)
+            values = _planar_coefficients(field_sets, box.axis(axis), axis, plan.axis)(full, soca)
         result.tensors.update(values)
         result.errors.update({k: np.full_like(v, np.nan) for k, v in values.items()})
     result.solver = {"kind": "direct steady solve: SOCA by spectral division, full by GMRES",
@@ -176,10 +208,10 @@ def _time(case, plan, result: TestFieldResult, progress) -> None:
     if plan.uniform:
         groups.append(ProblemGroup(layout, flow, eta, uniform_test_fields(), None, case.run.scheme,
                                    _uniform_coefficients, kernels))
-    field_sets = planar_tests(plan.axis, plan.modes, plan.wavenumbers)
-    flat = [f for fields in field_sets for f in fields]
-    groups.append(ProblemGroup(layout, flow, eta, flat, plan.axis, case.run.scheme,
-                               _planar_coefficients(field_sets, box.axis(plan.axis)), kernels))
+    for _, axis, field_sets in _planar_jobs(plan):
+        flat = [f for fields in field_sets for f in fields]
+        groups.append(ProblemGroup(layout, flow, eta, flat, axis, case.run.scheme,
+                                   _planar_coefficients(field_sets, box.axis(axis), axis, plan.axis), kernels))
     scales = {"alpha": flow.speed, "eta": flow.speed / flow.wavenumber}
     report = (lambda t, worst: progress(f"t = {t:10.4g}   worst error / tolerance = {worst:.3g}")) if progress else None
     outcome = integrate(groups, settings, scales, plan.tolerance, report)
@@ -208,12 +240,13 @@ def calibrate(case, progress=None, direct_run=None) -> TestFieldResult:
     plan = plan_from_case(case)
     flow = case.flow
     result = TestFieldResult(plan.axis, plan.modes, np.array(plan.wavenumbers), plan.method, case.Rm, case.eta,
-                             flow.speed, flow.wavenumber, False, "")
+                             flow.speed, flow.wavenumber, False, "", directions=plan.directions)
     result.notes.append(SOCA_CAUTION)
     if plan.method == "direct":
         _direct(case, plan, result, progress)
     else:
         _time(case, plan, result, progress)
+    _full_set(result, plan)
     for soca in (False, True):
         a, e = result.horizontal(soca)
         sfx = "_soca" if soca else ""
@@ -225,6 +258,17 @@ def calibrate(case, progress=None, direct_run=None) -> TestFieldResult:
     elif plan.closure:
         result.closure = _closure(case, plan, result, direct_run)
     return result
+
+
+def _full_set(result: TestFieldResult, plan) -> None:
+    """beta_ijk, Rädler's decomposition and its errors (:mod:`.full_set`), and the findings."""
+    result.full_set = derive_both(result.tensors, plan.directions, plan.axis)
+    outcome = result.time_outcome
+    if outcome is not None:
+        result.full_set_errors = block_estimates(outcome.record, outcome.settings.mode, plan.directions, plan.axis)
+    if not result.full_set_errors:
+        result.full_set_errors = {k: np.full_like(np.asarray(v, float), np.nan) for k, v in result.full_set.items()}
+    result.findings = findings(result)
 
 
 def _closure(case, plan, result, direct_run) -> dict:

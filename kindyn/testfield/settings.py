@@ -26,6 +26,9 @@ class TestFieldPlan:
 
     ``axis`` is 0, 1 or 2; ``modes`` the mode numbers ``m`` of the sinusoidal test fields with
     wavenumbers ``K = 2 pi m / L_axis``; ``method`` is ``"direct"`` or ``"time"`` (resolved).
+    ``directions`` are the averaging axes computed: ``(axis,)``, or ``(0, 1, 2)`` with
+    ``all_directions``; ``direction_modes[d]`` are the mode numbers of the same ``wavenumbers`` along
+    ``directions[d]`` (``K L_d / (2 pi)``).
     """
 
     axis: int
@@ -43,6 +46,10 @@ class TestFieldPlan:
     solver_tolerance: float
     onset_check: bool
     closure: bool
+    directions: tuple[int, ...] = ()
+    direction_modes: tuple[tuple[int, ...], ...] = ()
+    realisations: int = 1
+    closure_coupling: int = 2
 
     __test__ = False  # not a pytest class
 
@@ -54,6 +61,10 @@ class TestFieldPlan:
     def perpendicular(self) -> tuple[int, int]:
         """The two axes perpendicular to the averaging axis, in x, y, z order."""
         return tuple(i for i in range(3) if i != self.axis)
+
+    def modes_along(self, axis: int) -> tuple[int, ...]:
+        """Mode numbers of :attr:`wavenumbers` along ``axis`` (one of :attr:`directions`)."""
+        return self.direction_modes[self.directions.index(axis)]
 
 
 def plan_from_case(case) -> TestFieldPlan:
@@ -103,6 +114,39 @@ def plan_from_case(case) -> TestFieldPlan:
                         "no reset interval with direct steady solves (set testfield.method = \"time\")")
     if s.max_time is not None and s.min_time > s.max_time:
         raise CaseError(file, "testfield.min_time", s.min_time, f"a time not above testfield.max_time = {s.max_time}")
-    return TestFieldPlan(axis, tuple(modes), tuple(m * base for m in modes), s.uniform, method, s.reset_interval,
+    wavenumbers = tuple(m * base for m in modes)
+    directions, direction_modes = (axis,), (tuple(modes),)
+    if s.all_directions:
+        directions = (0, 1, 2)
+        direction_modes = tuple(tuple(modes) if d == axis else _modes_along(case, d, wavenumbers, key, shown)
+                                for d in directions)
+    if s.realisations > 1:
+        seed = getattr(flow, "seed", None)
+        if isinstance(seed, bool) or not isinstance(seed, int):
+            raise CaseError(file, "testfield.realisations", s.realisations,
+                            f"1 for the {case.flow_type} flow: an ensemble needs a random flow with a seed "
+                            "(e.g. \"random-helical\")")
+    return TestFieldPlan(axis, tuple(modes), wavenumbers, s.uniform, method, s.reset_interval,
                          s.settle_time, s.block_length, s.tolerance, s.min_time, s.max_time, s.samples_per_period,
-                         s.solver_tolerance, s.onset_check, s.closure)
+                         s.solver_tolerance, s.onset_check, s.closure, directions, direction_modes,
+                         s.realisations, s.closure_coupling)
+
+
+def _modes_along(case, axis: int, wavenumbers, key: str, shown) -> tuple[int, ...]:
+    """Mode numbers of ``wavenumbers`` along ``axis`` (all_directions: the same K on every axis)."""
+    box, name = case.box, AXES[axis]
+    base = 2 * math.pi / box.lengths[axis]
+    out = []
+    for K in wavenumbers:
+        m = K / base
+        if abs(m - round(m)) > 1e-9 * max(1.0, m):
+            raise CaseError(case.path, key, shown,
+                            f"with testfield.all_directions = true, wavenumbers that are whole multiples of "
+                            f"2*pi/L on every axis (K = {K:.6g} is not one of 2*pi/L{name} = {base:.6g})")
+        m = int(round(m))
+        if m > box.max_kept_modes[axis]:
+            raise CaseError(case.path, key, shown,
+                            f"with testfield.all_directions = true, K = {K:.6g} kept on every axis: along {name} it is "
+                            f"mode {m} > {box.max_kept_modes[axis]} (grid {box.grid[axis]}); use a finer grid")
+        out.append(m)
+    return tuple(out)

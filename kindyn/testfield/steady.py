@@ -49,30 +49,51 @@ def hermitian_part(b_hat: np.ndarray, layout) -> np.ndarray:
     return out
 
 
-def _diffusion(operator) -> np.ndarray:
-    """``eta |k|^2`` with the k = 0 value replaced by ``eta k_1^2`` (it only multiplies zeros)."""
-    d = operator.decay_rates.copy()
-    if operator.layout.uniform_mode is not None:
-        d[operator.layout.uniform_mode] = operator.eta * operator.layout.smallest_wavenumber ** 2
+def _diffusion(operator, shift: float = 0.0) -> np.ndarray:
+    """``eta |k|^2 + shift`` with the k = 0 value replaced by ``eta k_1^2`` (it only multiplies zeros).
+
+    With a shift, the modes of the average (which only multiply zeros: ``P`` removes them) are set to
+    one, and a shift that makes ``eta |k|^2 + shift <= 0`` on a kept fluctuation mode is refused
+    (:class:`~kindyn.errors.NumericalError`): the shifted problem is singular there."""
+    d = operator.decay_rates + float(shift)
+    layout = operator.layout
+    if shift:
+        inner = getattr(operator, "operator", operator)  # TestProblems wraps the induction operator
+        fluctuation = getattr(inner, "fluctuation_of", None)
+        if fluctuation is not None:
+            mean = np.broadcast_to(layout.mean_mode_mask(None if fluctuation == "box" else int(fluctuation)), d.shape)
+            d[mean] = 1.0
+            kept = np.broadcast_to(layout.dealias_mask, d.shape) & ~mean
+            if np.any(d[kept] <= 1e-12 * operator.eta * layout.smallest_wavenumber ** 2):
+                raise NumericalError(f"the shifted test problem (growth rate p = {shift:.6g}) is singular: p <= "
+                                     f"-eta |k|^2 = {-float(np.min(operator.decay_rates[kept])):.6g} on a fluctuation "
+                                     "mode (the mean-field mode decays as fast as the fluctuations diffuse)")
+    if layout.uniform_mode is not None:
+        d[layout.uniform_mode] = operator.eta * layout.smallest_wavenumber ** 2
     return d
 
 
-def soca_solution(operator, t: float = 0.0) -> np.ndarray:
-    """``b = S/(eta |k|^2)`` for every test of ``operator`` (steady flow), half-grid array."""
+def soca_solution(operator, t: float = 0.0, shift: float = 0.0) -> np.ndarray:
+    """``b = S/(eta |k|^2 + shift)`` for every test of ``operator`` (steady flow), half-grid array.
+
+    ``shift = p`` gives the response to a mean test field ``B_T exp(p t)`` (``b = b_hat exp(p t)``):
+    the coefficients at the growth rate ``p`` of a mean-field mode (memory effects)."""
     source = np.empty(operator.shape, dtype=complex)
     operator.source(t, source)
-    return source / _diffusion(operator)
+    return source / _diffusion(operator, shift)
 
 
-def full_solution(operator, tolerance: float = 1e-11, restart: int = 80, max_restarts: int = 60):
-    """Steady full solution ``(D - N) b = S`` by GMRES; one test field per call.
+def full_solution(operator, tolerance: float = 1e-11, restart: int = 80, max_restarts: int = 60,
+                  shift: float = 0.0):
+    """Steady full solution ``(D + shift - N) b = S`` by GMRES; one test field per call (``shift`` as
+    in :func:`soca_solution`; it must keep ``eta |k|^2 + shift > 0`` on the fluctuation modes).
 
     ``operator`` must hold exactly one test field (``3`` components). Returns ``(b_hat, info)``
     with ``info = {"residual": relative residual of (I - D^-1 N) b = D^-1 S, "iterations": n}``.
     Raises :class:`~kindyn.errors.NumericalError` when GMRES does not reach ``100 x tolerance``.
     """
     box, shape = operator.layout, operator.shape
-    D = _diffusion(operator)
+    D = _diffusion(operator, shift)
     work = np.empty(shape, dtype=complex)
     counter = {"n": 0}
 
@@ -85,7 +106,7 @@ def full_solution(operator, tolerance: float = 1e-11, restart: int = 80, max_res
         counter["n"] += 1
         return to_real(b - work / D)
 
-    rhs_c = soca_solution(operator)
+    rhs_c = soca_solution(operator, shift=shift)
     rhs = to_real(rhs_c)
     size = rhs.size
     A = spla.LinearOperator((size, size), matvec=matvec, dtype=np.float64)
