@@ -29,7 +29,7 @@ __all__ = ["Case", "NOT_IN_IDENTITY", "apply_overrides", "build_case", "load_cas
 # Keys that choose how a result is computed but not the arithmetic: the array-kernel sets compute
 # the same operations in the same order (kindyn.array_kernels), so a checkpoint or sweep point made
 # with one set stands for the other.
-NOT_IN_IDENTITY = (("numerics", "array_kernels"),)
+NOT_IN_IDENTITY = (("numerics", "array_kernels"), ("numerics", "decomposition"), ("numerics", "process_grid"))
 
 
 @dataclass(frozen=True, kw_only=True)

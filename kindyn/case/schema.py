@@ -307,6 +307,16 @@ class RunConfig(SectionConfig):
         positive, 0.03, "warn when the spectrum at the dealiasing cut-off exceeds this fraction of its peak")
 
 
+def _process_grid(value) -> tuple[int, int]:
+    """``[P1, P2]``: two whole numbers >= 1."""
+    expected = "[P1, P2]: two whole numbers >= 1 (a pencil process grid)"
+    if not isinstance(value, list) or len(value) != 2:
+        raise ValueError(expected)
+    if not all(isinstance(v, int) and not isinstance(v, bool) and 1 <= v <= MAX_THREADS * 256 for v in value):
+        raise ValueError(expected)
+    return tuple(value)
+
+
 @dataclass(frozen=True, kw_only=True)
 class NumericsConfig(SectionConfig):
     """``[numerics]``: how the grid arithmetic is done (transforms, threads, precision, kernels)."""
@@ -321,6 +331,12 @@ class NumericsConfig(SectionConfig):
         "array kernels of the step beside the FFTs: numba (fused loops, the `fast` extra; "
         "on `threads` threads or one, whichever is measured faster), numpy, or auto "
         "(numba when it works here)")
+    decomposition: str = setting(
+        choice("auto", "slab", "pencil"), "auto",
+        "how mpi4py-fft splits the grid over MPI processes (runs launched with mpiexec or srun): a slab over "
+        "x, a pencil over x and y, or auto (slab while it fits, else pencil)")
+    process_grid: tuple | None = setting(
+        _process_grid, None, "[P1, P2]: the pencil's process grid (their product is the number of processes)")
 
 
 FIGURE_FORMATS = ("png", "pdf", "svg")
