@@ -319,6 +319,7 @@ def _final_estimate(estimate: GrowthEstimate, time_error: float, grid_error: flo
         parts.append(RICHARDSON_SAFETY * time_error)
         squares.append(time_error)
         covers.append("time step")
+    this_grid = float(sum(parts))
     if flagged:
         parts.append(grid_error)
         squares.append(grid_error)
@@ -341,7 +342,7 @@ def _final_estimate(estimate: GrowthEstimate, time_error: float, grid_error: flo
         stop_reason = note
     final = dataclasses.replace(estimate, error=error, converged=converged, note=note, uncertainty=uncertainty,
                                 time_step_error=time_error, grid_error=grid_error if flagged else math.nan,
-                                covers=", ".join(covers))
+                                covers=", ".join(covers), error_this_grid=this_grid)
     return final, stop_reason
 
 

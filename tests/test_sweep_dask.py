@@ -57,13 +57,17 @@ def test_points_on_a_dask_cluster_equal_direct_runs(write_case, tmp_path, capsys
     assert code == 0, captured.err
     result = json.loads(captured.out)
     assert "Dask scheduler" in captured.err
+    statuses = []
     for point in result["points"]:
-        assert point["status"] == "converged" and not point["reused"]
         direct = run_growth(load_case(path, [f"magnetic.Rm={point['magnetic.Rm']!r}"])).estimate
+        # 8^3 is flagged at Rm = 2.5 and 5 (diffusive scale k_cut l = 0.96, 0.68 < 1: the grid
+        # dependence enters the error, above the tolerance): the point and the direct run agree on that too
+        assert point["status"] == ("converged" if direct.converged else "unconverged") and not point["reused"]
         assert point["growth_rate"] == pytest.approx(direct.growth_rate, rel=1e-12)
         assert point["growth_rate_error"] == pytest.approx(direct.error, rel=1e-12)
-        assert read_dataset(point["output"])["attributes"]["result_converged"] == 1
-    assert list(read_dataset(result["summary"])["status"]) == ["converged", "converged"]
+        assert read_dataset(point["output"])["attributes"]["result_converged"] == int(direct.converged)
+        statuses.append(point["status"])
+    assert list(read_dataset(result["summary"])["status"]) == statuses
 
     # the scheduler-file form (as written by `dask scheduler --scheduler-file`); finished points are reused
     scheduler_file = tmp_path / "scheduler.json"

@@ -66,8 +66,12 @@ def test_resolution_study_reports_the_true_changes_and_verdict(write_case, tmp_p
     points = result["points"]
     assert [p["domain.grid"] for p in points] == [[10, 10, 4], [13, 13, 4], [16, 16, 4]]
     refs = [reference_gamma((p["domain.grid"][0] - 1) // 3) for p in points]
+    # 10 x 10 is flagged (5 % of the peak shell energy at the cut-off; its true error against the
+    # converged M = 12 value is 3.2e-4): its reported error carries the grid dependence, above the
+    # tolerance, so it is not converged; 13 and 16 are resolved and converged
+    assert [p["resolution_warning"] for p in points] == [True, False, False]
     for p, ref in zip(points, refs):
-        assert p["converged"]
+        assert p["converged"] is (not p["resolution_warning"])
         assert abs(p["growth_rate"] - ref) <= p["growth_rate_error"] + 1e-7
     (study,) = result["resolution"]
     for change, combined, j in zip(study["changes"], study["combined_errors"], range(2)):

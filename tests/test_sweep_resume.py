@@ -112,7 +112,10 @@ def test_killed_sweep_resumes_and_matches_an_uninterrupted_one(write_case, tmp_p
     resumed = json.loads(capsys.readouterr().out)
     assert code == 0
     assert {p["identity"] for p in resumed["points"] if p["reused"]} == done_before
-    assert all(p["status"] == "converged" for p in resumed["points"])
+    # on 8^3 the points that a resolution criterion flags carry the grid dependence in their error,
+    # above the tolerance 1e-3: those are "unconverged", the others "converged"
+    assert all(p["status"] == ("unconverged" if p["resolution_warning"] else "converged") for p in resumed["points"])
+    assert any(p["status"] == "converged" for p in resumed["points"])
 
     fresh = tmp_path / "fresh"
     code = main(["sweep", str(path), "--out", str(fresh), "--workers", "2", "--json", "--quiet"])

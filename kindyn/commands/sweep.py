@@ -117,8 +117,8 @@ def json_report(result) -> dict:
     for row in result.rows:
         entry = dict(row["values"])
         entry.update({k: (clean_number(row[k]) if isinstance(row.get(k), float) else row.get(k))
-                      for k in ("growth_rate", "growth_rate_error", "frequency", "converged", "status", "message",
-                                "Rm", "resolution_warning", "wall_seconds")})
+                      for k in ("growth_rate", "growth_rate_error", "growth_rate_error_this_grid", "frequency",
+                                "converged", "status", "message", "Rm", "resolution_warning", "wall_seconds")})
         entry.update({"output": row["output"], "identity": row["identity"], "reused": row["reused"],
                       "refinement": row["refinement"]})
         points.append(entry)

@@ -64,6 +64,7 @@ class GrowthEstimate:
     time_step_error: float = math.nan  # Richardson estimate of the time-discretisation error (set by the run)
     grid_error: float = math.nan  # grid-dependence estimate of a flagged run (set by the run; nan: not flagged)
     covers: str = "fit"  # what ``error`` and ``uncertainty`` include (see kindyn.run)
+    error_this_grid: float = math.nan  # ``error`` without the grid-dependence part (set by the run)
 
 
 def snapshot_eigenvalue(times, probes, log_amplitudes, max_rank: int = 16) -> complex:

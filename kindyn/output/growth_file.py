@@ -29,6 +29,7 @@ def result_summary(case, outcome) -> dict:
         "growth_rate_snapshot": _finite(e.growth_rate_snapshot),
         "growth_rate_uncertainty": _finite(e.uncertainty),
         "growth_rate_error_covers": e.covers,
+        "growth_rate_error_this_grid": _finite(_error_this_grid(e)),
         "time_step_error": _finite(e.time_step_error),
         "grid_dependence_error": _finite(e.grid_error),
         "converged": bool(e.converged),
@@ -58,6 +59,13 @@ def result_summary(case, outcome) -> dict:
         "array_kernels": outcome.array_kernels,
         "array_kernels_note": outcome.array_kernels_note,
     }
+
+
+def _error_this_grid(e) -> float:
+    """The error without its grid-dependence part (fit and time step): what a study across grids
+    (``kindyn sweep --grids``) compares its changes with, since it measures the grid dependence itself."""
+    value = getattr(e, "error_this_grid", float("nan"))
+    return e.error if value != value else value
 
 
 def _finite(x):

@@ -34,8 +34,8 @@ from kindyn.sweep.resolution import resolution_study, with_grids
 from kindyn.sweep.spec import validate_sweep
 from kindyn.sweep.summary import write_summary
 
-RECORD_KEYS = ("growth_rate", "growth_rate_error", "frequency", "converged", "status", "message", "Rm",
-               "resolution_warning", "cutoff_ratio", "wall_seconds")
+RECORD_KEYS = ("growth_rate", "growth_rate_error", "growth_rate_error_this_grid", "frequency", "converged", "status",
+               "message", "Rm", "resolution_warning", "cutoff_ratio", "wall_seconds")
 
 
 @dataclass

@@ -159,8 +159,8 @@ def shrunk_case(case, axis: int, mode: int):
 
 def compare_scales(case, calibrate, direct_run=None, progress=None) -> ScaleComparison:
     """Everything of the module docstring for ``case`` (``calibrate(case) -> TestFieldResult``;
-    ``direct_run(case) -> (rate, error, b_hat)``, supplied by the command (this layer does not import
-    the run driver); without it the direct
+    ``direct_run(case) -> (rate, error, b_hat, caution)``, supplied by the command (this layer does not
+    import the run driver); without it the direct
     runs are skipped with a note)."""
     from kindyn.array_kernels import make_kernels
     from kindyn.testfield.calibration import _layout
@@ -261,7 +261,9 @@ def compare_scales(case, calibrate, direct_run=None, progress=None) -> ScaleComp
         say(f"K = {K[i]:.4g}: direct run in the box L_{'xyz'[s]} = {small.box.lengths[s]:.6g}, grid "
             f"{list(small.box.grid)}")
         try:
-            rate, error, b_hat = direct_run(small)
+            rate, error, b_hat, caution = direct_run(small)
+            if caution:
+                out.notes.append(f"K = {K[i]:.4g}: direct run: {caution}")
         except NumericalError as exc:
             out.notes.append(f"K = {K[i]:.4g}: the direct run failed ({exc})")
             continue
