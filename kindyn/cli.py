@@ -30,8 +30,10 @@ from kindyn.errors import KindynError, NumericalError, ParameterError, one_line
 from kindyn.array_kernels import configure_openmp_wait
 
 COMMANDS = ("run", "ensemble", "flow", "testfield", "closure", "sweep", "modes")
-PURPOSES = {"run": "run", "ensemble": "run", "flow": "flow", "testfield": "testfield", "sweep": "sweep",
-            "modes": "modes"}
+# what each command loads its case for (kindyn.case.budget.purpose: the memory estimate); closure
+# calibrates test fields in the case box (its direct runs are in boxes no larger)
+PURPOSES = {"run": "run", "ensemble": "run", "flow": "flow", "testfield": "testfield", "closure": "testfield",
+            "sweep": "sweep", "modes": "modes"}
 _ON_PROCESSES: list = []  # set once main() has been entered through main_on_processes
 TRACEBACK_VARIABLE = "KINDYN_TRACEBACK"  # set it to see the traceback of an internal error
 MAX_ENSEMBLE = 10_000  # realisations of kindyn ensemble

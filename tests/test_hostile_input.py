@@ -267,3 +267,34 @@ def test_quoted_text_is_clipped_and_escaped():
     assert one_line("a\u2028b\nc") == "a\\u2028b\\nc"
     huge = str(CaseError("f.toml", "magnetic.Rm", 10**4000 if False else "9" * 100000, "a number"))
     assert len(huge) < 400
+
+
+def test_every_command_has_a_purpose_and_a_readme_row():
+    """Common practice: every command of ``kindyn --help`` is listed in the README "Commands" table and
+    loads its case for the memory estimate of what it computes (closure calibrates test fields)."""
+    from kindyn import cli
+
+    readme = (CASES.parent / "README.md").read_text(encoding="utf-8")
+    table = readme.split("## Commands", 1)[1].split("Common options", 1)[0]
+    for name in cli.COMMANDS:
+        assert name in cli.PURPOSES, name
+        assert f"| `kindyn {name} CASE.toml" in table, name
+    assert cli.PURPOSES["closure"] == "testfield"
+
+
+def test_closure_is_checked_for_its_test_problems(tmp_path, capsys, monkeypatch):
+    """Common practice (and kindyn.case.budget): ``kindyn closure`` is refused on a machine that holds
+    the case's growth run but not its stacked test problems, before anything is computed."""
+    path = tmp_path / "case.toml"
+    path.write_text(small(ABC) + "[testfield]\nmodes = [1, 2]\n", encoding="utf-8")
+    config = read_config(path)
+    run, tests = budget.estimate(config, "run").nbytes, budget.estimate(config, "testfield").nbytes
+    assert run < tests
+    monkeypatch.setattr(budget, "machine_memory", lambda: (run + tests) // 2)
+
+    def no_computation(*args, **kwargs):
+        raise AssertionError("the closure was computed before the memory check")
+
+    monkeypatch.setattr("kindyn.commands.closure.compare_scales", no_computation)
+    code, lines, _ = run_cli(["closure", str(path), "--out", str(tmp_path / "out"), "--quiet"], capsys)
+    assert_one_line_error(code, lines, "needs about", "stacked test problems", "this machine has")
