@@ -110,6 +110,8 @@ HOSTILE_CASES = [
     ("line separators in a value", "run", ABC.replace('type = "abc"', 'type = "ab\u2028c\u2029d\u0085e"'), [],
      ["flow.type", "\\u2028", "\\u2029", "\\x85"]),
     ("--count of a million modes", "modes", small(ABC), ["--count", "1000000"], ["--count"]),
+    ("--count beyond the unknowns", "modes", ABC.replace("grid = [24, 24, 24]", "grid = [4, 4, 4]"),
+     ["--count", "900"], ["--count = 900", "at most 49 eigenvalues", "unknowns"]),
     ("--count of ten million realisations", "ensemble", small(ABC), ["--count", "10000000"], ["--count"]),
     ("--scheduler not-an-address", "sweep", small(ABC).replace("Rm = 12.0", "") + '[sweep]\n"magnetic.Rm" = [5]\n',
      ["--scheduler", "not-an-address"], ["--scheduler", "not-an-address", "host:port"]),

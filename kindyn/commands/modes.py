@@ -179,17 +179,34 @@ def leading_line(summary: dict, outcome) -> str:
             f"Rm = {number_text(summary['Rm'])}, eta = {number_text(summary['eta'])}")
 
 
+def case_with_count(args):
+    """The case of ``args`` with ``--count N`` as the case key ``modes.count`` (so that it passes the
+    same checks: the unknowns of the grid and the memory estimate, :mod:`kindyn.case.budget`); an
+    error in it names ``--count``."""
+    from kindyn.case import load_case
+    from kindyn.commands.common import figure_overrides
+
+    if args.count is None:
+        return case_from_args(args)
+    if args.count < 1:
+        raise CaseError("", "--count", args.count, "a whole number >= 1")
+    try:
+        return load_case(args.case, [*args.overrides, f"modes.count={int(args.count)}", *figure_overrides(args)])
+    except CaseError as exc:
+        if exc.key == "modes.count":
+            raise CaseError("", "--count", args.count, exc.expected) from None
+        raise
+
+
 def execute(args) -> int:
     report = Reporter("modes", args)
-    case = case_from_args(args)
-    if args.count is not None and args.count < 1:
-        raise CaseError("", "--count", args.count, "a whole number >= 1")
+    case = case_with_count(args)
     out = output_folder(args)
     nc_path, png_path = out / f"{case.name}-modes.nc", out / f"{case.name}-modes.{case.output.figure_format}"
     report.progress(f"kindyn modes {case.path}: {case.flow_type} flow, grid {list(case.box.grid)}, "
                     f"Rm = {case.Rm:.6g} (eta = {case.eta:.6g})")
     progress = None if report.quiet else modes_progress(case, lambda p: report.update(p, force=True))
-    outcome = solve_modes(case, count=args.count, progress=progress)
+    outcome = solve_modes(case, progress=progress)  # --count is case.modes.count
     summary = summary_of(case, outcome)
     cautions = modes_cautions(case, outcome, summary)
     from kindyn.output.modes_file import write_modes_file
