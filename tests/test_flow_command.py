@@ -105,8 +105,29 @@ def test_time_dependent_flows_get_no_steady_soca_numbers(tmp_path, capsys, flow,
 
 def test_human_output_names_the_numbers(tmp_path, capsys):
     code = main(["flow", str(write_case(tmp_path, 'type = "abc"')), "--out", str(tmp_path / "o")])
-    err = capsys.readouterr().err
-    assert code == 0 and "alpha = -4" in err and "eta_t = 4" in err and "Rm = U/(eta k_f) = 4" in err
+    out = capsys.readouterr().out
+    assert code == 0 and "alpha = -4" in out and "eta_t = 4" in out and "Rm = U/(eta k_f) = 4" in out
+
+
+def test_results_on_stdout_progress_on_stderr_quiet_and_json(tmp_path, capsys):
+    """Common practice (README "Commands", the convention of every command): results and cautions on
+    stdout, progress on stderr and silenced by --quiet (never the results); with --json stdout is one
+    JSON object and each caution is in it and on stderr."""
+    case = write_case(tmp_path, 'type = "abc"')  # eta = 1/4: Rm = 4, so SOCA is out of its range (a caution)
+    assert main(["flow", str(case), "--out", str(tmp_path / "o")]) == 0
+    plain = capsys.readouterr()
+    assert "u_rms = 1.73205" in plain.out and "SOCA: alpha = -4" in plain.out
+    assert "caution: SOCA (first-order smoothing) holds for Rm << 1" in plain.out
+    assert "wrote " in plain.out and "case-flow.nc" in plain.out
+    assert "u_rms" not in plain.err and "caution" not in plain.err and "kindyn flow" in plain.err
+    assert main(["flow", str(case), "--out", str(tmp_path / "o"), "--quiet"]) == 0
+    quiet = capsys.readouterr()
+    assert quiet.err == "" and quiet.out == plain.out
+    assert main(["flow", str(case), "--out", str(tmp_path / "o"), "--json", "--quiet"]) == 0
+    captured = capsys.readouterr()
+    data = json.loads(captured.out)
+    assert data["cautions"] and all(f"kindyn flow: caution: {c}" in captured.err for c in data["cautions"])
+    assert "u_rms" not in captured.err and data["output"].endswith("case-flow.nc")
 
 
 def test_ensemble_of_a_renovating_flow(tmp_path, capsys):

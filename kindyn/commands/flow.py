@@ -3,12 +3,16 @@
 Samples the flow at ``t = 0`` on the case's grid, prints the numbers of
 :mod:`kindyn.diagnostics.flow_stats` (``--json``: one object), writes ``NAME-flow.nc`` (velocity and
 spectra; readable back as a ``velocity-file`` flow) and ``NAME-flow.png`` (spectra).
+
+Where lines go (as for every command, :mod:`kindyn.commands.common`): the numbers, the files written and
+the cautions on stdout; what is being computed on stderr (off with ``--quiet``); with ``--json`` one
+object on stdout and the cautions also on stderr.
 """
 
 from __future__ import annotations
 
-from kindyn.commands.common import (add_case_arguments, add_figure_arguments, case_from_args, clean_number,
-                                    command_text, output_folder, print_json, say)
+from kindyn.commands.common import (Reporter, add_case_arguments, add_figure_arguments, add_quiet_argument,
+                                    case_from_args, clean_number, output_folder, results_kept)
 from kindyn.diagnostics.flow_stats import flow_statistics, time_dependence
 from kindyn.flows.scales import scale_rule
 from kindyn.assemble import transform_settings
@@ -31,6 +35,7 @@ MEAN_CAUTION = ("the flow has a uniform part |<u>| = {mean:.3g} (allowed by flow
 
 def add_arguments(parser) -> None:
     add_case_arguments(parser)
+    add_quiet_argument(parser)
     add_figure_arguments(parser)
 
 
@@ -102,42 +107,47 @@ def flow_summary(case, stats) -> dict:
 
 
 def execute(args) -> int:
+    report = Reporter("flow", args)
     case = case_from_args(args)
-    out = output_folder(args)
+    out = output_folder(args, case, [f"{case.name}-flow.nc", f"{case.name}-flow.{case.output.figure_format}"])
+    report.progress(f"kindyn flow {case.path}: {case.flow_type} flow, grid {list(case.box.grid)}, t = 0")
     u, stats = sample_flow(case)
     summary = flow_summary(case, stats)
     nc_path, png_path = out / f"{case.name}-flow.nc", out / f"{case.name}-flow.{case.output.figure_format}"
     from kindyn.output.flow_file import write_flow_file
 
-    write_flow_file(nc_path, case, summary, u, stats.wavenumbers, stats.energy_spectrum, stats.helicity_spectrum,
-                    command=command_text(args))
-    if case.output.figure:
-        flow_figure_of(png_path, case, stats, summary)
+    with results_kept(lambda: summary):  # if a file cannot be written
+        write_flow_file(nc_path, case, summary, u, stats.wavenumbers, stats.energy_spectrum,
+                        stats.helicity_spectrum, command=report.command_line)
+        if case.output.figure:
+            flow_figure_of(png_path, case, stats, summary)
     summary["output"] = str(nc_path)
     summary["figure"] = str(png_path) if case.output.figure else None
-    if args.json:
-        print_json({**summary, "spectra": {"k": stats.wavenumbers, "E": stats.energy_spectrum,
-                                           "H": stats.helicity_spectrum}})
-    else:
-        _print_human(summary)
+    for line in result_lines(summary):
+        report.result(line)
+    for caution in summary["cautions"]:
+        report.caution(caution)
+    report.result(f"wrote {summary['output']}" + (f" and {summary['figure']}" if summary["figure"] else ""))
+    report.finish({**summary, "spectra": {"k": stats.wavenumbers, "E": stats.energy_spectrum,
+                                          "H": stats.helicity_spectrum}})
     return 0
 
 
-def _print_human(s: dict) -> None:
+def result_lines(s: dict) -> list[str]:
+    """The numbers of the text report (stdout), without the cautions and the files."""
     def num(value):
         return "n/a" if value is None else f"{value:.6g}"
 
-    say(f"{s['flow_type']} flow ({s['time_dependence']}; numbers of the snapshot at t = 0)")
-    say(f"  u_rms = {num(s['u_rms'])}   max|u| = {num(s['max_speed'])}   |<u>| = {num(s['mean_flow'])}")
-    say(f"  U = {num(s['U'])}   k_f = {num(s['k_f'])}   eta = {num(s['eta'])}   Rm = U/(eta k_f) = {num(s['Rm'])}"
-        f"   Rm_rms = u_rms/(eta k_f) = {num(s['Rm_rms'])}")
-    say(f"  U and k_f: {s['scale_rule']}")
-    say(f"  <u.omega> = {num(s['helicity'])}   relative helicity = {num(s['relative_helicity'])}")
-    say(f"  ||div u||/||grad u|| = {num(s['divergence'])}   energy beyond the dealiased band: {num(s['band_fraction'])}")
-    say(f"  SOCA: alpha = {num(s['alpha_soca'])}   eta_t = {num(s['eta_t_soca'])}")
+    lines = [f"{s['flow_type']} flow ({s['time_dependence']}; numbers of the snapshot at t = 0)",
+             f"  u_rms = {num(s['u_rms'])}   max|u| = {num(s['max_speed'])}   |<u>| = {num(s['mean_flow'])}",
+             f"  U = {num(s['U'])}   k_f = {num(s['k_f'])}   eta = {num(s['eta'])}   Rm = U/(eta k_f) = {num(s['Rm'])}"
+             f"   Rm_rms = u_rms/(eta k_f) = {num(s['Rm_rms'])}",
+             f"  U and k_f: {s['scale_rule']}",
+             f"  <u.omega> = {num(s['helicity'])}   relative helicity = {num(s['relative_helicity'])}",
+             f"  ||div u||/||grad u|| = {num(s['divergence'])}   energy beyond the dealiased band: "
+             f"{num(s['band_fraction'])}",
+             f"  SOCA: alpha = {num(s['alpha_soca'])}   eta_t = {num(s['eta_t_soca'])}"]
     if s["time_note"]:
-        say(f"  time dependence: {s['time_note']}" +
-            (f"; Strouhal u_rms k_f tau_c = {s['strouhal']:.3g}" if s["strouhal"] is not None else ""))
-    for caution in s["cautions"]:
-        say(f"  caution: {caution}")
-    say(f"wrote {s['output']}" + (f" and {s['figure']}" if s["figure"] else ""))
+        lines.append(f"  time dependence: {s['time_note']}" +
+                     (f"; Strouhal u_rms k_f tau_c = {s['strouhal']:.3g}" if s["strouhal"] is not None else ""))
+    return lines
