@@ -33,6 +33,7 @@ from kindyn.array_kernels import make_kernels
 from kindyn.assemble import make_box_layout, transform_settings
 from kindyn.layout import BoxLayout
 from kindyn.testfield.problems import TestProblems
+from kindyn.testfield.resolution import resolution_check, solution_cutoff_ratio
 from kindyn.testfield.settings import plan_from_case
 
 SOCA_CAUTION = ("SOCA (second-order correlation approximation) is valid only at small Rm or short correlation "
@@ -43,6 +44,7 @@ SIGNS = ("Ebar_i = alpha_ij Bbar_j + beta_ijk d_k Bbar_j; planar averages: Ebar_
          "eta_ij (curl Bbar)_j, beta_ijs = -eta_il eps_lsj; row i = EMF component, column j = mean-field "
          "component")
 ONSET_MARGIN = 1e-8
+UNDER_RESOLVED = "possibly under-resolved"
 
 
 @dataclass
@@ -73,6 +75,7 @@ class TestFieldResult:
     full_set_errors: dict = field(default_factory=dict)
     findings: list = field(default_factory=list)
     ensemble: dict | None = None  # ensembles (kindyn.testfield.ensemble): count, seeds, spreads
+    resolution: dict = field(default_factory=dict)  # kindyn.testfield.resolution.resolution_check ({} for ensembles)
     members: list | None = None  # ensembles: the realisations' tensors and errors
 
     __test__ = False
@@ -174,7 +177,7 @@ def _direct(case, plan, result: TestFieldResult, progress) -> None:
                                 "solution is not their long-time limit")
             if not math.isfinite(rate):
                 result.notes.append(f"onset check for the {name} test problems did not converge (ARPACK)")
-    residuals = []
+    residuals, ratios = [], []
     for name, axis, field_sets in jobs:
         emf_full, emf_soca = [], []
         for fields in field_sets:
@@ -183,6 +186,7 @@ def _direct(case, plan, result: TestFieldResult, progress) -> None:
                 b_soca = steady.soca_solution(op)
                 b_full, info = steady.full_solution(op, plan.solver_tolerance)
                 residuals.append(info["residual"])
+                ratios.append(solution_cutoff_ratio(b_full, layout, flow))
                 emf_full.append(op.emf(0.0, b_full)[0])
                 emf_soca.append(op.emf(0.0, b_soca)[0])
                 if progress:
@@ -197,13 +201,14 @@ def _direct(case, plan, result: TestFieldResult, progress) -> None:
     result.solver = {"kind": "direct steady solve: SOCA by spectral division, full by GMRES",
                      "max_relative_residual": max(residuals) if residuals else 0.0}
     result.converged, result.stop_reason = True, "direct steady solve"
+    _resolution(case, layout, result, max(ratios, default=0.0))
 
 
 def _time(case, plan, result: TestFieldResult, progress) -> None:
     box, flow, eta = case.box, case.flow, case.eta
     layout = _layout(case)
     kernels = make_kernels(layout.transforms.array_kernels, layout.transforms.threads, layout.real_dtype)
-    settings = time_settings(flow, layout, eta, plan, case.run.cfl, case.run.time_step)
+    settings = time_settings(flow, layout, eta, plan, case.run.cfl, case.run.time_step, case.run.scheme, case.path)
     groups = []
     if plan.uniform:
         groups.append(ProblemGroup(layout, flow, eta, uniform_test_fields(), None, case.run.scheme,
@@ -228,6 +233,17 @@ def _time(case, plan, result: TestFieldResult, progress) -> None:
         result.notes.append(RESET_CAUTION + " (growing test solutions were detected)")
     elif settings.reset_interval is not None:
         result.notes.append("results can depend on the reset interval when the flow is above dynamo onset")
+    _resolution(case, layout, result, outcome.cutoff_ratio)
+
+
+def _resolution(case, layout, result: TestFieldResult, ratio: float) -> None:
+    """Both resolution criteria of :mod:`kindyn.testfield.resolution` (the test solutions' spectrum at
+    the cut-off, ``ratio``, and the diffusive scale): into ``result.resolution`` and, when either trips,
+    a caution in ``result.notes`` (printed by ``kindyn testfield``, in its JSON ``cautions`` and the
+    netCDF ``caution`` attribute)."""
+    result.resolution = resolution_check(case, layout, ratio)
+    if result.resolution["resolution_warning"]:
+        result.notes.append(f"{UNDER_RESOLVED}: {result.resolution['resolution_caution']}")
 
 
 def calibrate(case, progress=None, direct_run=None) -> TestFieldResult:

@@ -119,6 +119,8 @@ def summary_of(case, result, closure: dict | None = None) -> dict:
         "sign_convention": SIGNS,
         "sign_convention_full_set": FULL_SET_SIGNS,
         "cautions": list(result.notes),
+        "resolution_warning": bool(getattr(result, "resolution", {}).get("resolution_warning", False)),
+        "resolution": _plain(getattr(result, "resolution", {}) or {}),
     }
     ensemble = getattr(result, "ensemble", None)
     if ensemble:
@@ -144,6 +146,8 @@ def file_attributes(result, summary: dict, cautions) -> dict:
         "closure": json.dumps(summary["closure"]) if summary["closure"] else "",
         "onset_growth_rates": json.dumps(summary["onset_growth_rates"]),
         "findings": json.dumps(summary["findings"]),
+        "resolution_warning": int(bool(summary.get("resolution_warning"))),
+        "resolution": json.dumps(summary.get("resolution") or {}),
     }
     if summary.get("ensemble"):
         attributes["ensemble"] = json.dumps({k: v for k, v in summary["ensemble"].items() if k != "members"})
