@@ -300,3 +300,35 @@ def test_closure_is_checked_for_its_test_problems(tmp_path, capsys, monkeypatch)
     monkeypatch.setattr("kindyn.commands.closure.compare_scales", no_computation)
     code, lines, _ = run_cli(["closure", str(path), "--out", str(tmp_path / "out"), "--quiet"], capsys)
     assert_one_line_error(code, lines, "needs about", "stacked test problems", "this machine has")
+
+
+@pytest.mark.parametrize("dims", [{"x": 100000, "y": 100000, "z": 100000},
+                                  {"time": 100000, "x": 64, "y": 64, "z": 64}])
+def test_a_velocity_file_declaring_huge_sizes_is_refused_from_its_header(dims, tmp_path, capsys, monkeypatch):
+    """Common practice (kindyn.case.budget): a velocity file whose header declares more values than the
+    machine holds (a sparse netCDF-4 file: dimensions declared, fill off, no data written, a few kB on
+    disk) is refused with one line naming the file, the variable and its sizes, before any data is read
+    (a machine of 1 GiB)."""
+    netCDF4 = pytest.importorskip("netCDF4")
+    monkeypatch.setattr(budget, "machine_memory", lambda: 2**30)
+    with netCDF4.Dataset(tmp_path / "huge.nc", "w") as ds:
+        ds.set_fill_off()
+        for name, size in dims.items():
+            ds.createDimension(name, size)
+        for name in ("ux", "uy", "uz"):
+            ds.createVariable(name, "f8", tuple(dims), chunksizes=(1,) * (len(dims) - 1) + (64,))
+    assert (tmp_path / "huge.nc").stat().st_size < 100_000
+    path = tmp_path / "case.toml"
+    path.write_text('[domain]\ngrid = [8, 8, 8]\n[magnetic]\neta = 0.1\n[flow]\ntype = "velocity-file"\n'
+                    'file = "huge.nc"\n', encoding="utf-8")
+
+    def no_reading(*args, **kwargs):
+        raise AssertionError("the velocity file was read before its sizes were checked")
+
+    monkeypatch.setattr("kindyn.flows.velocity_file.read_velocity_file", no_reading)
+    started = time.monotonic()
+    code, lines, _ = run_cli(["flow", str(path), "--out", str(tmp_path / "out"), "--quiet"], capsys)
+    assert time.monotonic() - started < 30
+    shape = " x ".join(str(n) for n in dims.values())
+    assert_one_line_error(code, lines, 'flow.file = "huge.nc"', f"ux({', '.join(dims)}) of {shape}",
+                          "needs about", "this machine has 1.0 GiB")

@@ -31,6 +31,12 @@ needs. Total memory is read from ``/proc/meminfo``
 (``MemTotal``, or a cgroup limit when lower), else ``os.sysconf``; when it cannot be read, only
 sizes that could never fit are refused (:data:`ABSOLUTE_LIMIT_BYTES`).
 
+A velocity file (``flow.type = "velocity-file"``) is read whole: before it is read, the sizes its
+header declares (:func:`kindyn.flows.velocity_file.declared_shape`) are checked too
+(:func:`check_velocity_file`): ``FILE_READ_COPIES`` copies of its three components in double
+precision while it is read (the variables and their stack), one snapshot's transform, and its
+snapshots kept on the case's grid, on top of the estimate above.
+
 Other sizes checked here: ``numerics.threads`` at most the cores this process may use (except
 where the case runs elsewhere: :func:`purpose` with ``local=False``), and for eigen-solves
 ``modes.count`` below the number of unknowns of the grid.
@@ -55,6 +61,7 @@ TESTFIELD_REALS_PER_COMPONENT = 4  # per point and stacked component (states and
 PLANAR_REALS_PER_POINT = 64  # per point of the nx x ny plane (complex fields, 2-D transforms)
 BASIS_BYTES_CAP = 512 * 2**20  # the Arnoldi basis cap of kindyn.eigen.krylov
 DEFAULT_BASIS = 120  # kindyn.eigen.krylov.DEFAULT_MAX_BASIS
+FILE_READ_COPIES = 2  # a velocity file's values while it is read: the variables, then their stack
 ABSOLUTE_LIMIT_BYTES = 2**50  # 1 PiB: refused even where the machine's memory is unknown
 
 PURPOSES = ("run", "flow", "modes", "testfield", "sweep")
@@ -269,14 +276,54 @@ def check_budget(config, flow=None) -> None:
     if local and flow is None:
         check_threads(config)
     found = estimate(config, name, flow)
-    available = machine_memory() if local else None
-    limit = available if available is not None else ABSOLUTE_LIMIT_BYTES
+    limit, have = _limit(local)
     if found.nbytes > limit:
-        have = f"this machine has {size_text(available, down=True)}" if available is not None else \
-            f"the limit is {size_text(ABSOLUTE_LIMIT_BYTES)}"
         raise CaseError(file, found.key, found.value,
                         f"a case that fits in memory: it needs about {size_text(found.nbytes)} "
                         f"({found.what}); {have}")
+    if flow is None:
+        check_velocity_file(config, found.nbytes, limit, have)
+
+
+def _limit(local: bool) -> tuple[int, str]:
+    """Bytes a case may need here, and the words for it."""
+    available = machine_memory() if local else None
+    if available is not None:
+        return available, f"this machine has {size_text(available, down=True)}"
+    return ABSOLUTE_LIMIT_BYTES, f"the limit is {size_text(ABSOLUTE_LIMIT_BYTES)}"
+
+
+def velocity_file_bytes(shape, grid) -> int:
+    """Bytes of reading a velocity file whose variables have ``shape`` ((S,) nx', ny', nz') for a case
+    on ``grid`` (module docstring)."""
+    snapshots = math.prod(shape[:-3]) if len(shape) > 3 else 1
+    points = math.prod(shape[-3:]) if len(shape) >= 3 else math.prod(shape)
+    read = 3 * 8 * points * (FILE_READ_COPIES * snapshots + 1)
+    kept = 3 * 8 * snapshots * _points(grid)  # complex coefficients on the half grid
+    return read + kept
+
+
+def check_velocity_file(config, needed: int = 0, limit: int | None = None, have: str = "") -> None:
+    """Refuse a velocity file whose declared sizes do not fit beside the case's ``needed`` bytes,
+    from its header alone (before any of its data is read)."""
+    if config.flow_type != "velocity-file":
+        return
+    from pathlib import Path
+
+    from kindyn.flows.velocity_file import declared_shape
+
+    found = declared_shape(config.flow_params, str(Path(config.path).parent))
+    if found is None:
+        return  # the reader says what is wrong with the file
+    if limit is None:
+        limit, have = _limit(current_purpose()[1])
+    path, variable, dims, shape = found
+    nbytes = needed + velocity_file_bytes(shape, config.domain.grid)
+    if nbytes > limit:
+        sizes = f"{variable}({', '.join(dims)}) of {_grid_text(shape)}"
+        raise CaseError(config.path, "flow.file", config.flow_params.get("file"),
+                        f"a velocity file that fits in memory: {path.name} declares {sizes} points, and "
+                        f"reading it needs about {size_text(nbytes)}; {have}")
 
 
 def check_threads(config) -> None:

@@ -40,6 +40,31 @@ SCALE_ATTRIBUTES = ("U", "k_f")
 ENDS = ("hold", "loop")
 
 
+def declared_shape(params: dict, case_dir="."):
+    """``(path, variable, dimension names, shape)`` the file's header declares for the first velocity
+    variable, read without reading any data (for the memory check of :mod:`kindyn.case.budget`,
+    before the file is read); None when the file or the variable cannot be found or read (the
+    reader then says what is wrong)."""
+    spec = params.get("file")
+    names = params.get("variables", ["ux", "uy", "uz"])
+    if not isinstance(spec, str) or not spec or not isinstance(names, (list, tuple)) or not names \
+            or not isinstance(names[0], str):
+        return None
+    path = (Path(case_dir) / spec).resolve()
+    try:
+        if not path.is_file():
+            return None
+        import netCDF4
+
+        with netCDF4.Dataset(path) as ds:
+            if names[0] not in ds.variables:
+                return None
+            var = ds.variables[names[0]]
+            return path, names[0], tuple(var.dimensions), tuple(int(len(ds.dimensions[d])) for d in var.dimensions)
+    except (OSError, RuntimeError, KeyError, ValueError, TypeError):
+        return None
+
+
 def read_velocity_file(path: Path, names, box, spec):
     """``(times or None, data (S, 3, nx', ny', nz'), (U or None, k_f or None))`` from the file;
     raise on layout problems."""
