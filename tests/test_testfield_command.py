@@ -149,3 +149,37 @@ def test_closure_check_reports_mean_field_and_direct_growth_rates(write_case, tm
         abs(c["mean_field_growth_rate"] - c["direct_growth_rate"]) / abs(c["direct_growth_rate"]), rel=1e-12)
     assert c["scale_separation"] == 2.0 and c["direct_box_scale_mean_share"] > 0.5
 
+
+
+def test_progress_has_an_eta_for_both_methods(write_case, tmp_path, capsys):
+    """Common practice (as ``kindyn run`` and ``modes``): progress lines carry the elapsed time and an
+    ETA. Direct solves: solve i of n (3 uniform + 4 per K), ETA at the mean time per solve from the
+    second on. Time stepping: error / tolerance falling as C t^-p reaches 1 at t_c = C^(1/p) (exact for
+    a power law, as tests/test_notebook_api.py checks for GrowthEta); at 2 time units per second
+    the ETA is (t_c - t)/2."""
+    from kindyn.case import load_case
+    from kindyn.commands.testfield import testfield_progress
+    from kindyn.testfield.settings import plan_from_case
+
+    path = write_case(ABC_CASE, "abc-eta.toml")
+    code, out, err = run_cli(capsys, "testfield", str(path), "--out", str(tmp_path / "o"),
+                             "--set", "output.figure=false")
+    assert code == 0, err
+    lines = [line for line in err.splitlines() if "GMRES residual" in line]
+    assert len(lines) == 11 and lines[0].strip().startswith("solve 1/11:") and "ETA" not in lines[0]
+    assert all("| elapsed" in line and "ETA" in line for line in lines[1:]), lines
+    assert "solve 1/11" not in out
+
+    case = load_case(path, ['testfield.method="time"'])
+    plan = plan_from_case(case)
+    clock = iter(np.arange(0.0, 100.0, 1.0))
+    updates = []
+    progress = testfield_progress(case, plan, lambda p, force: updates.append(p), clock=lambda: float(next(clock)))
+    C, p = 50.0, 1.5
+    for t in (2.0, 4.0, 6.0, 8.0):
+        progress(f"t = {t:10.4g}   worst error / tolerance = {C * t ** -p:.17g}")
+    t_c = C ** (1 / p)
+    last = updates[-1]
+    assert last.until == "convergence" and last.fraction == pytest.approx(8.0 / t_c, rel=1e-9)
+    assert last.eta == pytest.approx((t_c - 8.0) / ((8.0 - 2.0) / last.elapsed), rel=1e-9)
+    assert last.line().startswith(last.text + " | elapsed") and "ETA" in last.line()

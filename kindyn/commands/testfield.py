@@ -22,16 +22,26 @@ N realisations (flow seeds s, s+1, ...) run as sweep points (``--workers``, ``--
 ``--scheduler`` for Dask; :mod:`kindyn.sweep.testfield_ensemble`) and the report shows the ensemble
 means with combined standard errors (:mod:`kindyn.testfield.ensemble`). JSON keys beyond those above:
 :mod:`kindyn.testfield.summary`.
+
+Progress (stderr, off with ``--quiet``) carries the elapsed time and an ETA (:func:`testfield_progress`):
+for direct steady solves, one line per test field (solve i of n) with an ETA, from the second solve on,
+at the mean time per solve;
+for time stepping, the worst error / tolerance ratio of the coefficients, whose fall with time gives
+the time it reaches 1 (:class:`kindyn.commands.progress.GrowthEta`, as for a growth run; capped by
+``testfield.max_time`` when the case gives one).
 """
 
 from __future__ import annotations
 
 import math
+import re
+import time
 
 import numpy as np
 
 from kindyn.commands.common import (Reporter, add_case_arguments, add_figure_arguments, add_quiet_argument,
-                                    case_from_args, number_text, output_folder, with_error)
+                                    case_from_args, number_text, output_folder, results_kept,
+                                    with_error)
 from kindyn.testfield.calibration import calibrate
 from kindyn.testfield.kernels import LorentzianFit
 from kindyn.testfield.summary import file_attributes, summary_of as _summary_of
@@ -50,6 +60,59 @@ def add_arguments(parser) -> None:
     group.add_argument("--scheduler", default=None, metavar="ADDRESS",
                        help="run the realisations on this Dask scheduler (address or scheduler file)")
 
+
+
+_TIME_LINE = re.compile(r"t =\s*(\S+)\s+worst error / tolerance =\s*(\S+)")
+
+
+def solve_total(plan) -> int:
+    """Test fields a direct steady solve solves one by one: the three uniform ones and four per K and
+    averaging direction."""
+    return (3 if plan.uniform else 0) + 4 * len(plan.wavenumbers) * len(plan.directions)
+
+
+def testfield_progress(case, plan, sink, command: str = "testfield", clock=time.monotonic):
+    """A ``progress(text)`` callable for :func:`kindyn.testfield.calibration.calibrate` that sends
+    :class:`~kindyn.commands.progress.Progress` updates with an ETA to ``sink(update, force)`` (``force``
+    is True: the driver reports at most every two seconds itself; see the
+    module docstring). The driver reports plain text: a direct solve's line per test field
+    (``... GMRES residual ...``), time stepping's ``t = ...   worst error / tolerance = ...``; any
+    other line is passed on with the elapsed time only."""
+    from kindyn.commands.progress import GrowthEta, Progress
+
+    started = clock()
+    total = solve_total(plan)
+    limit = plan.max_time if plan.max_time else math.inf
+    growth = GrowthEta(1.0, limit, plan.min_time, clock)
+    solved, first = [0], [started]
+
+    def progress(text: str) -> None:
+        elapsed = clock() - started
+        if plan.method == "direct" and "GMRES residual" in text:
+            solved[0] += 1
+            done = min(solved[0], total)
+            if done == 1:  # the set-up (layout, kernels, onset check) came before: time the solves from here
+                first[0] = clock()
+            eta = (clock() - first[0]) / (done - 1) * (total - done) if done > 1 else None
+            fraction = done / total
+            sink(Progress(command, f"  solve {done}/{total}: {text}", elapsed, eta, fraction, "remaining solves"),
+                 True)
+            return
+        match = _TIME_LINE.search(text)
+        if match:
+            try:
+                t, worst = float(match.group(1)), float(match.group(2))
+            except ValueError:
+                t = worst = math.nan
+            if math.isfinite(t):
+                elapsed, eta, fraction, until = growth.observe(t, worst)
+                if eta is not None and not math.isfinite(eta):
+                    eta, fraction, until = None, None, ""
+                sink(Progress(command, "  " + text, elapsed, eta, fraction, until), True)  # the driver throttles
+                return
+        sink(Progress(command, "  " + text, elapsed), True)
+
+    return progress
 
 
 def summary_of(case, result) -> dict:
@@ -347,10 +410,13 @@ def execute(args) -> int:
     from kindyn.testfield.settings import plan_from_case
 
     plan = plan_from_case(case)  # every check that needs the box, before any output folder is made
-    out = output_folder(args)
+    png_name = FigureStyle.from_output(case.output).path(".", f"{case.name}-testfield").name
+    realisations = ([f"{case.name}-realisations/points/{case.fingerprint}.testfield.{suffix}" for suffix in
+                     ("nc", "json")] if plan.realisations > 1 else [])  # the records of the realisations
+    out = output_folder(args, case, [f"{case.name}-testfield.nc", png_name, *realisations])
     nc_path = out / f"{case.name}-testfield.nc"
-    png_path = FigureStyle.from_output(case.output).path(out, f"{case.name}-testfield")
-    progress = None if report.quiet else (lambda text: report.progress("  " + text))
+    png_path = out / png_name
+    progress = None if report.quiet else testfield_progress(case, plan, report.update)
     report.progress(f"kindyn testfield {case.path}: {case.flow_type} flow, grid {list(case.box.grid)}, "
                     f"Rm = {case.Rm:.6g} (eta = {case.eta:.6g})"
                     + (f", {plan.realisations} realisations" if plan.realisations > 1 else ""))
@@ -375,11 +441,12 @@ def execute(args) -> int:
         variables.update(ensemble_variables([m["tensors"] for m in result.members], result.ensemble["seeds"]))
         summary["ensemble"]["members"] = [{"seed": m["seed"], "output": m["output"], "converged": m["converged"]}
                                           for m in result.members]
-    write_testfield_file(nc_path, case, summary, variables, file_attributes(result, summary, cautions), result.K,
-                         summary["mean_components"], command=report.command_line,
-                         members=len(result.members) if result.members else None)
-    if case.output.figure:
-        _figure(case, result, png_path)
+    with results_kept(lambda: summary):  # if a file cannot be written
+        write_testfield_file(nc_path, case, summary, variables, file_attributes(result, summary, cautions),
+                             result.K, summary["mean_components"], command=report.command_line,
+                             members=len(result.members) if result.members else None)
+        if case.output.figure:
+            _figure(case, result, png_path)
     summary["output"] = str(nc_path)
     summary["figure"] = str(png_path) if case.output.figure else None
     level = _residual_level(result)
