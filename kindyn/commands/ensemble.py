@@ -70,8 +70,9 @@ def member_cautions(members: list, threshold: float) -> list[str]:
     warned = [m for m in members if m["resolution_warning"]]
     if warned:
         worst = max(warned, key=lambda m: m["cutoff_ratio"] if m["cutoff_ratio"] is not None else -1.0)
-        text = resolution_caution(worst["cutoff_ratio"], threshold) if worst["cutoff_ratio"] is not None else \
-            "possibly under-resolved: under-resolved runs can show spurious growth; repeat on a finer grid"
+        text = worst.get("resolution_caution") or (
+            resolution_caution(worst["cutoff_ratio"], threshold) if worst["cutoff_ratio"] is not None else
+            "possibly under-resolved: under-resolved runs can show spurious growth; repeat on a finer grid")
         out.append(f"{len(warned)} of {count} realisation(s) may be under-resolved (flow seeds {seeds(warned)}; "
                    f"worst: seed {worst['seed']}): {text}")
     missing = [m for m in members if not m["estimate_available"]]
@@ -104,8 +105,7 @@ def execute(args) -> int:
         outcome = run_growth(case, progress=meter.member(case, i) if not report.quiet else None)
         meter.finished(i)
         path = out / f"{case.name}-seed{seed}.nc"
-        caution = (resolution_caution(outcome.cutoff_ratio, case.run.resolution_threshold)
-                   if outcome.resolution_warning else "")
+        caution = outcome.resolution_caution if outcome.resolution_warning else ""
         write_growth_file(path, case, outcome, None,
                           extra={"ensemble_member": i, "flow_seed": seed, "resolution_caution": caution},
                           command=report.command_line)
@@ -115,7 +115,8 @@ def execute(args) -> int:
                         "estimate_available": has_estimate(summary),
                         "stop_reason": summary["stop_reason"],
                         "resolution_warning": bool(outcome.resolution_warning),
-                        "cutoff_ratio": clean_number(outcome.cutoff_ratio), "output": str(path)})
+                        "cutoff_ratio": clean_number(outcome.cutoff_ratio), "resolution_caution": caution,
+                        "output": str(path)})
         report.progress("  " + member_line(members[-1]))
     stats = ensemble_statistics([m["growth_rate"] for m in members])
     errors = [m["growth_rate_error"] for m in members if m["growth_rate_error"] is not None]

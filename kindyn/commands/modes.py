@@ -73,9 +73,9 @@ def modes_progress(case, sink, command: str = "modes"):
 def modes_cautions(case, outcome, summary: dict) -> list[str]:
     """The cautions of an eigen-solve (time-step error, resolution, convergence)."""
     cautions = [TIME_STEP_CAUTION.format(dt=outcome.time_step)]
-    if outcome.resolution_warning:
-        cautions.insert(0, resolution_caution(outcome.cutoff_ratio, case.run.resolution_threshold,
-                                              what="leading eigenfield's spectrum"))
+    if outcome.resolution_warning:  # either criterion (kindyn.eigen.solve: spectrum, diffusive scale)
+        cautions.insert(0, outcome.resolution_caution or resolution_caution(
+            outcome.cutoff_ratio, case.run.resolution_threshold, what="leading eigenfield's spectrum"))
     if not summary["converged"]:
         cautions.append(f"the leading eigenvalue did not converge: {summary['stop_reason']} (residual "
                         f"{outcome.leading.residual:.2g}, modes.tolerance {case.modes.tolerance:g})")

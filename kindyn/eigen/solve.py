@@ -12,8 +12,11 @@ time-periodic flows: Floquet multipliers of the period map (:mod:`kindyn.eigen.f
 modulo ``2 pi/T``. Other flows (random renovating, aperiodic) have no eigenmodes and are refused.
 
 Cautions carried into every result: the eigenvalues inherit the time scheme's ``O(dt^4)`` error
-(lower ``modes.cfl`` to check), and an under-resolved grid can show spurious growth
-(``cutoff_ratio`` of the leading eigenfield against ``run.resolution_threshold``).
+(lower ``modes.cfl`` to check), and an under-resolved grid can show spurious growth: flagged, as a
+run is, by either of two criteria (``cutoff_ratio`` of the leading eigenfield against
+``run.resolution_threshold``, and the diffusive scale ``k_cut sqrt(eta/|grad u|_rms) >= 1``;
+``ModesOutcome.resolution_caution`` says which). The time step is checked against the scheme's
+stability limit (for rk2 with the step diffusion number, :func:`kindyn.assemble.check_stability`).
 """
 
 from __future__ import annotations
@@ -28,9 +31,10 @@ from kindyn.eigen.floquet import floquet_modes, steps_per_period
 from kindyn.eigen.krylov import EigenSolution, leading_eigenpairs
 from kindyn.assemble import check_stability, transform_settings
 from kindyn.eigen.z_independent import is_z_independent, kz_plane_cutoff_ratio, kz_plane_time_step
-from kindyn.layout import KzPlane
+from kindyn.layout import KzPlane, KzPlaneLayout
 from kindyn.eigen.propagator import box_propagator, kz_plane_propagator
 from kindyn.errors import CaseError
+from kindyn.timestep import diffusion_number, max_speed
 
 DEFAULT_PROPAGATION_TURNOVERS = 1.0  # T = 1/(U k_f): principal branch for |omega| < pi U k_f (see krylov)
 
@@ -72,10 +76,13 @@ class ModesOutcome:
     applications: int
     wall_seconds: float
     cutoff_ratio: float
-    resolution_warning: bool
+    resolution_warning: bool  # either resolution criterion tripped (resolution_flags says which)
     z_independent: bool
     planar_grid: tuple | None = None
     solutions: dict = field(default_factory=dict)  # kz (or None) -> EigenSolution
+    resolution_flags: tuple = ()  # "spectrum" (leading eigenfield at the cut-off) and/or "diffusive_scale"
+    diffusive_resolution: float = math.nan  # k_cut sqrt(eta/|grad u|_rms) (resolved when >= 1)
+    resolution_caution: str = ""  # the sentences for the flagged criteria ("" when none tripped)
 
     @property
     def leading(self) -> Mode:
@@ -119,9 +126,11 @@ def _steady_steps(settings, dt_max: float, turnover: float) -> tuple[float, int]
     return T / steps, steps
 
 
-def _time_grid(case, kind: str, dt_at_unit_cfl: float) -> tuple[float, int]:
+def _time_grid(case, kind: str, dt_at_unit_cfl: float, speed: float) -> tuple[float, int]:
     """``(dt, steps)`` of one propagation: whole flow periods for periodic flows, otherwise an even
-    number of steps over the propagation time; ``dt_at_unit_cfl`` is the step at ``cfl = 1``."""
+    number of steps over the propagation time; ``dt_at_unit_cfl`` is the step at ``cfl = 1``,
+    ``speed`` the flow's ``max_x |u|`` (the step diffusion number ``eta/(dt U^2)`` that the rk2
+    stability limit needs, :func:`kindyn.timestep.diffusion_number`)."""
     settings, flow = case.modes, case.flow
     dt_max = settings.time_step or settings.cfl * dt_at_unit_cfl
     if kind == "periodic":
@@ -130,7 +139,9 @@ def _time_grid(case, kind: str, dt_at_unit_cfl: float) -> tuple[float, int]:
     else:
         dt, steps = _steady_steps(settings, dt_max, 1.0 / (flow.speed * flow.wavenumber))
     key, value = ("modes.time_step", settings.time_step) if settings.time_step else ("modes.cfl", settings.cfl)
-    check_stability(case.run.scheme, dt / dt_at_unit_cfl, case.path, key, value)
+    rate = 1.0 / dt_at_unit_cfl if dt_at_unit_cfl > 0 and math.isfinite(dt_at_unit_cfl) else None
+    check_stability(case.run.scheme, dt / dt_at_unit_cfl, case.path, key, value, rate,
+                    damping=diffusion_number(case.eta, dt, speed))
     return dt, steps
 
 
@@ -163,12 +174,37 @@ def solve_modes(case, count: int | None = None, progress=None, with_fields: bool
         outcome = _solve_box(case, count, kind, progress, with_fields)
     else:
         outcome = _solve_planar(case, count, kind, progress, with_fields)
-    threshold = case.run.resolution_threshold
+    flags, diffusive, caution = _resolution(case, outcome["cutoff"], outcome.get("planar_grid"))
     return ModesOutcome(method, kind == "periodic", outcome["modes"], outcome["fields"], outcome["dt"],
                         outcome["T"], 2 * math.pi / outcome["T"] if kind == "periodic" else None,
                         outcome["applications"], wallclock.time() - started, outcome["cutoff"],
-                        outcome["cutoff"] > threshold, z_independent, outcome.get("planar_grid"),
-                        outcome["solutions"])
+                        bool(flags), z_independent, outcome.get("planar_grid"),
+                        outcome["solutions"], tuple(flags), diffusive, caution)
+
+
+def _resolution(case, cutoff: float, planar_grid) -> tuple[list, float, str]:
+    """Both resolution criteria of a run (:mod:`kindyn.run`) for an eigen-solve: the leading
+    eigenfield's spectrum at the cut-off against ``run.resolution_threshold``, and the diffusive scale
+    (:mod:`kindyn.diagnostics.resolution`) on the grid that was solved (the planar grid for planar
+    solves; z, along which such a flow is uniform, does not count). ``(flags, k_cut l, caution)``."""
+    from kindyn.box import Box
+    from kindyn.diagnostics.resolution import counted_axes, diffusive_caution, diffusive_resolution, resolution_flags
+    from kindyn.diagnostics.spectra import resolution_caution
+    from kindyn.layout import BoxLayout
+
+    box = case.box
+    if planar_grid is not None:
+        box = Box(box.lengths, (planar_grid[0], planar_grid[1], box.grid[2]))
+    layout = BoxLayout(box)
+    diffusive = diffusive_resolution(case.flow, layout, case.eta, counted_axes(case.flow, layout))
+    threshold = case.run.resolution_threshold
+    flags = resolution_flags(cutoff, threshold, diffusive)
+    cautions = []
+    if "spectrum" in flags:
+        cautions.append(resolution_caution(cutoff, threshold, what="leading eigenfield's spectrum"))
+    if "diffusive_scale" in flags:
+        cautions.append(diffusive_caution(diffusive, "eigen-solve"))
+    return flags, diffusive.ratio, "; ".join(cautions)
 
 
 def _modes_of(solution: EigenSolution, kz) -> list:
@@ -182,7 +218,8 @@ def _solve_box(case, count, kind, progress, with_fields) -> dict:
     from kindyn.timestep import cfl_time_step
 
     box, flow, settings = case.box, case.flow, case.modes
-    dt, steps = _time_grid(case, kind, cfl_time_step(flow, BoxLayout(box), 1.0))
+    grid_layout = BoxLayout(box)
+    dt, steps = _time_grid(case, kind, cfl_time_step(flow, grid_layout, 1.0), max_speed(flow, grid_layout))
     propagator = box_propagator(box, flow, case.eta, dt, steps, transform_settings(case.numerics), case.run.scheme)
     if progress:
         progress(f"box {list(box.grid)}: {propagator.size} unknowns, T = {propagator.time:.4g}, "
@@ -212,7 +249,7 @@ def _solve_planar(case, count, kind, progress, with_fields) -> dict:
     _check_plane(case, plane)
     wavenumbers = settings.kz or default_wavenumbers(box)
     widest = KzPlane(lengths, plane, max(wavenumbers))
-    dt, steps = _time_grid(case, kind, kz_plane_time_step(flow, widest, 1.0))
+    dt, steps = _time_grid(case, kind, kz_plane_time_step(flow, widest, 1.0), max_speed(flow, KzPlaneLayout(widest)))
     solutions, candidates, applications = {}, [], 0
     for kz in wavenumbers:
         grid = KzPlane(lengths, plane, kz)
@@ -264,7 +301,8 @@ def point_summary(case, outcome: ModesOutcome) -> dict:
     converged and residual below ``100 * modes.tolerance``), ``kz`` (planar; None for box),
     ``method``, ``periodic``, ``frequency_modulus`` (``2 pi/T`` for Floquet modes, else None),
     ``eigenvalues`` (list of ``[gamma, omega]``), ``residuals``, ``Rm``, ``eta``, ``U``, ``k_f``,
-    ``cutoff_ratio``, ``resolution_warning``, ``wall_seconds``, ``propagations``.
+    ``cutoff_ratio``, ``resolution_warning``, ``resolution_flags``, ``diffusive_resolution``,
+    ``wall_seconds``, ``propagations``.
 
     ``growth_rate_error`` is the first-order bound ``residual / T`` on the eigenvalue of the
     propagator mapped back to ``p`` (``|d mu| <= residual |mu|`` and ``dp = d mu/(mu T)``).
@@ -290,6 +328,8 @@ def point_summary(case, outcome: ModesOutcome) -> dict:
         "k_f": flow.wavenumber,
         "cutoff_ratio": outcome.cutoff_ratio,
         "resolution_warning": bool(outcome.resolution_warning),
+        "resolution_flags": list(outcome.resolution_flags),
+        "diffusive_resolution": outcome.diffusive_resolution if math.isfinite(outcome.diffusive_resolution) else None,
         "wall_seconds": outcome.wall_seconds,
         "propagations": outcome.applications,
     }

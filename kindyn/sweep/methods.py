@@ -13,7 +13,6 @@ from __future__ import annotations
 
 import importlib
 from pathlib import Path
-from kindyn.diagnostics.spectra import resolution_caution
 
 
 def growth_point(case, output: Path, checkpoint: Path) -> dict:
@@ -38,9 +37,7 @@ def modes_point(case, output: Path, checkpoint: Path) -> dict:
 
     outcome = solve_modes(case, count=1, with_fields=False)
     summary = point_summary(case, outcome)
-    cautions = []
-    if outcome.resolution_warning:
-        cautions.append(resolution_caution(outcome.cutoff_ratio, case.run.resolution_threshold))
+    cautions = [outcome.resolution_caution] if outcome.resolution_caution else []
     write_modes_file(output, case, outcome, summary, cautions)
     return summary
 
