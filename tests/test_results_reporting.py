@@ -154,6 +154,9 @@ def test_run_results_on_stdout_progress_on_stderr(write_case, tmp_path, capsys):
     assert code == 0
     assert re.search(r"^growth rate gamma = -0\.25\d* \+- ", out, re.M), out  # exact: -eta k^2 = -0.25
     assert "converged" in out and "wrote" in out
+    # the calibrated uncertainty and the field a script should test (kindyn.run module docstring)
+    assert re.search(r"^growth_rate_uncertainty = \S+ \(calibrated estimate; the \+- above is a safe bound "
+                     r"covering fit, time step.*\); trustworthy: ", out, re.M), out
     assert "collecting samples" in err and "growth rate" not in err
     code, quiet_out, quiet_err = cli(capsys, "run", path, "--out", tmp_path / "b", "--quiet")
     assert code == 0 and quiet_err == ""  # --quiet: no progress ...
@@ -165,6 +168,7 @@ def test_run_cautions_stay_with_quiet_and_go_to_json_and_stderr(write_case, tmp_
     code, out, err = cli(capsys, "run", path, "--out", tmp_path / "a", "--quiet")
     assert code == 0 and err == ""
     assert re.search(r"^caution: .*under-resolved", out, re.M), out
+    assert "trustworthy: NO (a resolution criterion tripped)" in out
     code, out, err = cli(capsys, "run", path, "--out", tmp_path / "b", "--quiet", "--json")
     result = one_json_object(out)
     assert code == 0 and result["resolution_warning"] is True
@@ -289,6 +293,10 @@ def test_ensemble_carries_resolution_warnings(write_case, tmp_path, capsys):
     assert "under-resolved" in nc["attributes"]["caution"]
     member = read_dataset(result["members"][0]["output"])
     assert "under-resolved" in member["attributes"]["resolution_caution"]
+    # both criteria reach the members' files and the summary (the run's own caution, not one rebuilt
+    # from the cut-off ratio alone): k_cut l < 1 on 12^3 at Rm = 20 (kindyn.diagnostics.resolution)
+    assert "diffusive scale" in member["attributes"]["resolution_caution"]
+    assert any("diffusive scale" in c for c in result["cautions"]) and "diffusive scale" in nc["attributes"]["caution"]
 
 
 # ---- 4. sweep: uncertain signs, invalid swept values --------------------------------------------

@@ -80,7 +80,12 @@ def result_lines(summary: dict, outcome) -> list[str]:
         return [f"growth rate: {NO_ESTIMATE}{so_far}; {outcome.stop_reason}{note}; {where}", scales]
     state = "converged" if summary["converged"] else f"NOT converged ({outcome.stop_reason})"
     gamma = with_error(summary["growth_rate"], summary["growth_rate_error"], sign=True)
+    covers = summary.get("growth_rate_error_covers") or "fit"
+    trust = ("yes" if summary.get("trustworthy") else
+             "NO (" + ("a resolution criterion tripped" if summary.get("resolution_warning") else "not converged") + ")")
     return [f"growth rate gamma = {gamma}, frequency omega = {number_text(summary['frequency'])}, {state}; {where}",
+            f"growth_rate_uncertainty = {number_text(summary.get('growth_rate_uncertainty'), 2)} (calibrated "
+            f"estimate; the +- above is a safe bound covering {covers}); trustworthy: {trust}",
             scales]
 
 
