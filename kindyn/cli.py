@@ -26,7 +26,7 @@ import sys
 
 from kindyn import __version__
 from kindyn.commands.common import stdout_reserved_for_json
-from kindyn.errors import KindynError, NumericalError, ParameterError, one_line
+from kindyn.errors import KindynError, NumericalError, ParameterError, WriteError, one_line
 from kindyn.array_kernels import configure_openmp_wait
 
 COMMANDS = ("run", "ensemble", "flow", "testfield", "closure", "sweep", "modes")
@@ -83,6 +83,9 @@ def main(argv=None) -> int:
             return commands[args.command].execute(args)
     except NumericalError as exc:
         print(f"kindyn {args.command}: numerical failure: {one_line(exc)}", file=sys.stderr)
+        return 1
+    except WriteError as exc:  # computed, but an output file could not be written; the results were kept
+        print(f"kindyn {args.command}: failure: {one_line(exc)}", file=sys.stderr)
         return 1
     except KindynError as exc:
         print(f"kindyn {args.command}: error: {one_line(exc)}", file=sys.stderr)

@@ -44,6 +44,11 @@ class FlowError(KindynError):
     """A flow cannot be built or fails its checks (periodicity, divergence, finite values)."""
 
 
+class WriteError(KindynError):
+    """A result was computed but a file of it could not be written (disk full, folder removed): one
+    line naming the file and the reason, exit code 1; the command has kept the result (on stdout)."""
+
+
 class NumericalError(KindynError):
     """The integration produced NaN/Inf or ran away; the message gives step, time and energy."""
 

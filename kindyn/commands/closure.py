@@ -27,7 +27,8 @@ import math
 import numpy as np
 
 from kindyn.commands.common import (Reporter, add_case_arguments, add_figure_arguments, add_quiet_argument,
-                                    case_from_args, number_text, output_folder, with_error)
+                                    case_from_args, number_text, output_folder, results_kept,
+                                    with_error)
 from kindyn.testfield.scales import AGREEMENT_SIGMAS, LABELS, PREDICTIONS, compare_scales
 from kindyn.testfield.summary import nested
 
@@ -136,10 +137,11 @@ def execute(args) -> int:
     from kindyn.testfield.settings import plan_from_case
 
     plan_from_case(case)  # every check that needs the box, before any output folder is made
-    out = output_folder(args)
-    nc_path = out / f"{case.name}-closure.nc"
     style = FigureStyle.from_output(case.output)
-    png_path = style.path(out, f"{case.name}-closure")
+    png_name = style.path(".", f"{case.name}-closure").name
+    out = output_folder(args, case, [f"{case.name}-closure.nc", png_name])
+    nc_path = out / f"{case.name}-closure.nc"
+    png_path = out / png_name
     report.progress(f"kindyn closure {case.path}: {case.flow_type} flow, grid {list(case.box.grid)}, "
                     f"Rm = {case.Rm:.6g}, K = {2 * math.pi / case.box.lengths[plan_from_case(case).axis]:.4g} x "
                     f"{list(case.testfield.modes or [1])}")
@@ -153,24 +155,25 @@ def execute(args) -> int:
     summary = summary_of(case, comparison, table, cautions)
     from kindyn.output.closure_file import write_closure_file
 
-    write_closure_file(nc_path, case, table, {
-        "caution": "; ".join(cautions),
-        "local_closure": json.dumps(summary["local_closure"]),
-        "harmonics": json.dumps(comparison.harmonics),
-        "memory": json.dumps(summary["memory"]),
-        "agreement": f"a closure holds where |p - p_direct| <= {AGREEMENT_SIGMAS:g} sqrt(err^2 + err_direct^2)",
-        "averaging_axis": "xyz"[comparison.axis],
-        "flow_periods_in_box": comparison.periods,
-    }, command=report.command_line)
-    if case.output.figure:
-        from kindyn.output.figures_testfield import closure_figure
+    with results_kept(lambda: summary):  # if a file cannot be written
+        write_closure_file(nc_path, case, table, {
+            "caution": "; ".join(cautions),
+            "local_closure": json.dumps(summary["local_closure"]),
+            "harmonics": json.dumps(comparison.harmonics),
+            "memory": json.dumps(summary["memory"]),
+            "agreement": f"a closure holds where |p - p_direct| <= {AGREEMENT_SIGMAS:g} sqrt(err^2 + err_direct^2)",
+            "averaging_axis": "xyz"[comparison.axis],
+            "flow_periods_in_box": comparison.periods,
+        }, command=report.command_line)
+        if case.output.figure:
+            from kindyn.output.figures_testfield import closure_figure
 
-        shown = ("measured", "soca", "local", "memory")
-        closure_figure(png_path, comparison.K, comparison.direct, comparison.direct_error,
-                       {LABELS[n]: (comparison.predictions[n], comparison.prediction_errors[n]) for n in shown},
-                       f"{case.name}: {case.flow_type}, Rm = {case.Rm:.4g}: closures versus direct runs",
-                       note=f"direct runs in boxes with L = 2 pi/K; memory: test fields at the mode's own p, "
-                            f"harmonics coupled to order {plan_from_case(case).closure_coupling}", style=style)
+            shown = ("measured", "soca", "local", "memory")
+            closure_figure(png_path, comparison.K, comparison.direct, comparison.direct_error,
+                           {LABELS[n]: (comparison.predictions[n], comparison.prediction_errors[n]) for n in shown},
+                           f"{case.name}: {case.flow_type}, Rm = {case.Rm:.4g}: closures versus direct runs",
+                           note=f"direct runs in boxes with L = 2 pi/K; memory: test fields at the mode's own p, "
+                                f"harmonics coupled to order {plan_from_case(case).closure_coupling}", style=style)
     summary["output"] = str(nc_path)
     summary["figure"] = str(png_path) if case.output.figure else None
     for line in text_report(case, comparison):

@@ -130,10 +130,39 @@ def command_text(args) -> str:
     return " ".join(shlex.quote(w) for w in words if w)
 
 
-def output_folder(args) -> Path:
-    out = Path(args.out)
-    out.mkdir(parents=True, exist_ok=True)
-    return out
+def output_folder(args, case=None, names=()) -> Path:
+    """The ``--out`` folder, created and checked before any computation together with the file
+    ``names`` the command will write there (:func:`kindyn.output.atomic.check_output`: a folder that
+    can be written, names the file system accepts; one line and exit code 2 otherwise)."""
+    from kindyn.output.atomic import check_output
+
+    where = getattr(case, "path", "") if case is not None else ""
+    key = "output.name (or the case file's name)" if case is not None else "output name"
+    return check_output(args.out, names, file=where, key=key)
+
+
+@contextlib.contextmanager
+def results_kept(results, note: str = ""):
+    """While the block writes the output files: if a write fails (disk full, the folder removed),
+    print the results on stdout as one JSON object (``results()``, the command's summary without
+    the files) and raise :class:`~kindyn.errors.WriteError` (one line, exit code 1; ``note`` adds
+    what else is kept, e.g. a checkpoint), so that a finished computation is never lost. The
+    atomic writers have removed their temporaries."""
+    from kindyn.errors import WriteError
+    from kindyn.output.atomic import OutputWriteFailure
+
+    try:
+        yield
+    except OutputWriteFailure as exc:
+        target = exc.filename or "an output file"
+        try:
+            kept = dict(results())
+            kept["output_error"] = f"{target}: {exc.strerror or exc}"
+            print_json(kept)
+            where = "the results are on stdout (JSON)"
+        except Exception as failure:  # noqa: BLE001 -- the write error is what the user must hear
+            where = f"the results could not be printed either ({type(failure).__name__})"
+        raise WriteError(f"could not write {target}: {exc.strerror or exc}; {where}{note}") from None
 
 
 def print_json(obj) -> None:

@@ -32,7 +32,8 @@ import numpy as np
 
 from kindyn.case import load_case
 from kindyn.commands.common import (NO_ESTIMATE, Reporter, add_case_arguments, add_quiet_argument, case_from_args,
-                                    clean_number, has_estimate, number_text, output_folder, with_error)
+                                    clean_number, has_estimate, number_text, output_folder, results_kept,
+                                    with_error)
 from kindyn.commands.progress import Progress, growth_reporter
 from kindyn.diagnostics.spectra import resolution_caution
 from kindyn.errors import CaseError
@@ -96,7 +97,8 @@ def execute(args) -> int:
         raise CaseError(base.path, "flow.type", base.flow_type,
                         "a random flow with a seed (e.g. \"random-helical\") for an ensemble")
     cases = [load_case(args.case, [*args.overrides, f"flow.seed={first + i}"]) for i in range(args.count)]
-    out = output_folder(args)
+    out = output_folder(args, base, [f"{base.name}-ensemble.nc", *(f"{c.name}-seed{first + i}.nc"
+                                                                  for i, c in enumerate(cases))])
     members = []
     meter = EnsembleMeter(args.count, report)
     for i, case in enumerate(cases):
@@ -106,10 +108,12 @@ def execute(args) -> int:
         meter.finished(i)
         path = out / f"{case.name}-seed{seed}.nc"
         caution = outcome.resolution_caution if outcome.resolution_warning else ""
-        write_growth_file(path, case, outcome, None,
-                          extra={"ensemble_member": i, "flow_seed": seed, "resolution_caution": caution},
-                          command=report.command_line)
         summary = result_summary(case, outcome)
+        with results_kept(lambda: {"count": args.count, "first_seed": first, "members_finished": members,
+                                   "member": {"seed": seed, **summary}}):  # if the file cannot be written
+            write_growth_file(path, case, outcome, None,
+                              extra={"ensemble_member": i, "flow_seed": seed, "resolution_caution": caution},
+                              command=report.command_line)
         members.append({"seed": seed, "growth_rate": summary["growth_rate"],
                         "growth_rate_error": summary["growth_rate_error"], "converged": summary["converged"],
                         "estimate_available": has_estimate(summary),
@@ -129,7 +133,8 @@ def execute(args) -> int:
               "resolution_warning": any(m["resolution_warning"] for m in members),
               "cautions": cautions, "members": members}
     path = out / f"{base.name}-ensemble.nc"
-    write_ensemble_file(path, base, result, command=report.command_line)
+    with results_kept(lambda: result):  # if the file cannot be written
+        write_ensemble_file(path, base, result, command=report.command_line)
     result["output"] = str(path)
     for m in members:
         report.result(f"  flow seed {m['seed']}: {member_line(m)}")

@@ -21,7 +21,8 @@ import math
 import numpy as np
 
 from kindyn.commands.common import (Reporter, add_case_arguments, add_figure_arguments, add_quiet_argument,
-                                    case_from_args, number_text, output_folder, with_error)
+                                    case_from_args, number_text, output_folder, results_kept,
+                                    with_error)
 from kindyn.commands.progress import CountEta, Progress
 from kindyn.eigen.solve import point_summary, solve_modes
 from kindyn.errors import CaseError
@@ -201,7 +202,7 @@ def case_with_count(args):
 def execute(args) -> int:
     report = Reporter("modes", args)
     case = case_with_count(args)
-    out = output_folder(args)
+    out = output_folder(args, case, [f"{case.name}-modes.nc", f"{case.name}-modes.{case.output.figure_format}"])
     nc_path, png_path = out / f"{case.name}-modes.nc", out / f"{case.name}-modes.{case.output.figure_format}"
     report.progress(f"kindyn modes {case.path}: {case.flow_type} flow, grid {list(case.box.grid)}, "
                     f"Rm = {case.Rm:.6g} (eta = {case.eta:.6g})")
@@ -211,11 +212,12 @@ def execute(args) -> int:
     cautions = modes_cautions(case, outcome, summary)
     from kindyn.output.modes_file import write_modes_file
 
-    write_modes_file(nc_path, case, outcome, summary, cautions, command=report.command_line)
     figure = None
-    if case.output.figure and outcome.fields:
-        modes_figure_of(png_path, case, outcome, summary)
-        figure = str(png_path)
+    with results_kept(lambda: {**summary, "cautions": cautions}):  # if a file cannot be written
+        write_modes_file(nc_path, case, outcome, summary, cautions, command=report.command_line)
+        if case.output.figure and outcome.fields:
+            modes_figure_of(png_path, case, outcome, summary)
+            figure = str(png_path)
     summary["output"] = str(nc_path)
     summary["figure"] = figure
     summary["cautions"] = cautions

@@ -17,11 +17,11 @@ from __future__ import annotations
 
 
 from kindyn.commands.common import (NO_ESTIMATE, Reporter, add_case_arguments, add_figure_arguments,
-                                    add_quiet_argument, case_from_args, number_text, output_folder, settle_estimate,
-                                    with_error)
+                                    add_quiet_argument, case_from_args, number_text, output_folder, results_kept,
+                                    settle_estimate, with_error)
 from kindyn.commands.progress import growth_progress_text, growth_reporter
 from kindyn.output.checkpoint import Checkpoint
-from kindyn.output.growth_file import record_growth_run
+from kindyn.output.growth_file import record_growth_run, result_summary
 from kindyn.run import default_tolerance, run_growth
 
 HELP = "integrate the induction equation until the growth rate converges"
@@ -103,7 +103,8 @@ def run_cautions(summary: dict, outcome, resolution: str) -> list[str]:
 def execute(args) -> int:
     report = Reporter("run", args)
     case = case_from_args(args)
-    out = output_folder(args)
+    out = output_folder(args, case, [f"{case.name}.nc", f"{case.name}.{case.output.figure_format}",
+                                     f"{case.name}.checkpoint.nc"])
     nc_path, png_path = out / f"{case.name}.nc", out / f"{case.name}.{case.output.figure_format}"
     checkpoint = AnnouncingCheckpoint(out / f"{case.name}.checkpoint.nc", report.note)
     if args.fresh:
@@ -114,13 +115,16 @@ def execute(args) -> int:
     outcome = run_growth(case, progress=progress, checkpoint=checkpoint)
     if outcome.field is None:  # not the first of several MPI processes: that one writes and reports
         return 0
-    summary, resolution = record_growth_run(nc_path, case, outcome, command=report.command_line)
-    summary = settle_estimate(summary)
-    if outcome.array_kernels_note:
-        report.note(f"array kernels {outcome.array_kernels} ({outcome.array_kernels_note}); "
-                    f"results are the same, only slower")
-    if case.output.figure:
-        growth_figure_of(png_path, case, outcome)
+    kept = (lambda: settle_estimate(result_summary(case, outcome)))  # if a file cannot be written
+    note = f"; the checkpoint {checkpoint.path} is kept" if checkpoint.path.exists() else ""
+    with results_kept(kept, note):
+        summary, resolution = record_growth_run(nc_path, case, outcome, command=report.command_line)
+        summary = settle_estimate(summary)
+        if outcome.array_kernels_note:
+            report.note(f"array kernels {outcome.array_kernels} ({outcome.array_kernels_note}); "
+                        f"results are the same, only slower")
+        if case.output.figure:
+            growth_figure_of(png_path, case, outcome)
     checkpoint.remove()
     summary["output"] = str(nc_path)
     summary["figure"] = str(png_path) if case.output.figure else None

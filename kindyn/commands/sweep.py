@@ -21,7 +21,7 @@ from __future__ import annotations
 from pathlib import Path
 
 from kindyn.commands.common import (Reporter, add_case_arguments, add_figure_arguments, add_quiet_argument, clean_number,
-                                    command_environment, figure_overrides, with_error)
+                                    command_environment, figure_overrides, results_kept, with_error)
 from kindyn.errors import ParameterError
 
 HELP = "run a parameter sweep (e.g. growth rate versus Rm): dynamo windows, resolution studies, Dask clusters"
@@ -98,11 +98,14 @@ def execute(args) -> int:
                            scheduler=args.scheduler, cluster=args.cluster, refine=True if args.refine else None,
                            grids=parse_grids(args.grids) if args.grids else None,
                            figure=False, say=report.progress_callback)
-    with command_environment(report.command_line):  # the summary and every point record the command
-        result = run_sweep(args.case, args.overrides, options)
-    output, flow_type = figure_settings(args.case, args.overrides, figure_overrides(args))
-    if output.figure and not args.no_figure:
-        result.figure_path = draw_sweep_figure(result, output, flow_type)
+    points = Path(args.out) / "points"  # if a file cannot be written, the finished points are kept there
+    with results_kept(lambda: {"points": str(points)}, f"; the finished points are kept in {points} and a "
+                      "second run with the same --out reuses them"):
+        with command_environment(report.command_line):  # the summary and every point record the command
+            result = run_sweep(args.case, args.overrides, options)
+        output, flow_type = figure_settings(args.case, args.overrides, figure_overrides(args))
+        if output.figure and not args.no_figure:
+            result.figure_path = draw_sweep_figure(result, output, flow_type)
     for line in report_lines(result, cautions=False):
         report.result(line)
     for caution in all_cautions(result):

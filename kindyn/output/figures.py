@@ -14,7 +14,6 @@ are drawn as tags above the data, never on it: :func:`status_tags`.
 
 from __future__ import annotations
 
-import os
 from dataclasses import dataclass
 from pathlib import Path
 
@@ -22,6 +21,7 @@ import numpy as np
 from matplotlib.backends.backend_agg import FigureCanvasAgg
 from matplotlib.figure import Figure
 
+from kindyn.output.atomic import atomic_stream
 from kindyn.output.numbers import with_error
 
 FORMATS = ("png", "pdf", "svg")
@@ -71,22 +71,22 @@ def styled_figure(style: FigureStyle | None, default_size, **options) -> Figure:
 
 
 def save(fig, path, style: FigureStyle | None = None) -> None:
-    """Write atomically (temporary name, then rename) in the format of ``path``'s suffix (png, pdf,
-    svg) at the style's dpi, at exactly the figure's size."""
+    """Write atomically (a temporary created exclusively, then renamed: :mod:`kindyn.output.atomic`)
+    in the format of ``path``'s suffix (png, pdf, svg) at the style's dpi, at exactly the figure's
+    size."""
     style = style or DEFAULT_STYLE
     path = Path(path)
     path.parent.mkdir(parents=True, exist_ok=True)
     suffix = path.suffix.lower().lstrip(".") or style.format
     if suffix not in FORMATS:
         raise ValueError(f"figure format {suffix!r}: one of {', '.join(FORMATS)}")
-    partial = path.with_name(path.stem + ".part" + path.suffix)
     metadata = {"Creator": "kindyn"} if suffix in ("png", "pdf", "svg") else None
     if suffix == "pdf":
         metadata["CreationDate"] = None  # reproducible files
     if suffix == "svg":
         metadata = {"Creator": "kindyn", "Date": None}
-    fig.savefig(partial, dpi=style.dpi, format=suffix, metadata=metadata)
-    os.replace(partial, path)
+    with atomic_stream(path) as stream:  # a new temporary, no link followed, removed on failure
+        fig.savefig(stream, dpi=style.dpi, format=suffix, metadata=metadata)
 
 
 def rounded(value, error, sign: bool = False) -> str:

@@ -1,8 +1,9 @@
 """netCDF writing and reading: plain data in, CF-1.8 names, units and long_name attributes.
 
-Files are written to a temporary name in the same folder and renamed when complete, so a killed
-process never leaves an unreadable file under the final name. Periodic coordinates have no
-endpoint; ``time`` holds simulation time. Complex data is stored as real and imaginary parts.
+Files are written to a temporary created exclusively in the same folder (a new random name, no
+link followed) and renamed when complete, so a killed process never leaves an unreadable file
+under the final name and nothing outside the folder is written (:mod:`kindyn.output.atomic`).
+Periodic coordinates have no endpoint; ``time`` holds simulation time. Complex data is stored as real and imaginary parts.
 netCDF attributes take no None, dicts or numpy booleans: :func:`attribute_value` converts.
 
 What keeps every file CF-clean (checked by ``tests/test_cf_files.py`` with ``cfchecker``):
@@ -28,6 +29,7 @@ from __future__ import annotations
 
 import contextlib
 import datetime
+import errno
 import json
 import os
 import shlex
@@ -36,6 +38,8 @@ from pathlib import Path
 
 import netCDF4
 import numpy as np
+
+from kindyn.output.atomic import atomic_path
 
 CONVENTIONS = "CF-1.8"
 
@@ -57,19 +61,33 @@ def attribute_value(value):
 
 @contextlib.contextmanager
 def atomic_dataset(path):
-    """Open ``path + ".part"`` for writing; rename to ``path`` only if the block succeeds."""
-    path = Path(path)
-    path.parent.mkdir(parents=True, exist_ok=True)
-    partial = path.with_name(path.name + ".part")
-    ds = netCDF4.Dataset(partial, "w", format="NETCDF4")
-    try:
-        yield ds
-    except BaseException:
-        ds.close()
-        partial.unlink(missing_ok=True)
-        raise
-    ds.close()
-    os.replace(partial, path)
+    """A new netCDF4 dataset for ``path``, renamed to ``path`` only if the block succeeds and the
+    file closes cleanly. It is written on a temporary created exclusively beside ``path`` (a new
+    random name, never an existing file or a link: :func:`kindyn.output.atomic.atomic_path`); on any
+    failure (in the block, or netCDF's "HDF error" on a full disk when writing or closing) the
+    temporary is removed and an :class:`OSError` naming ``path`` is raised (other errors unchanged)."""
+    with atomic_path(path) as partial:
+        try:
+            ds = netCDF4.Dataset(partial, "w", format="NETCDF4", clobber=True)
+        except RuntimeError as exc:
+            raise _netcdf_failure(exc) from None
+        try:
+            yield ds
+        except BaseException as exc:
+            with contextlib.suppress(Exception):
+                ds.close()
+            if isinstance(exc, RuntimeError) and str(exc).startswith("NetCDF"):
+                raise _netcdf_failure(exc) from None
+            raise
+        try:
+            ds.close()
+        except RuntimeError as exc:
+            raise _netcdf_failure(exc) from None
+
+
+def _netcdf_failure(exc: RuntimeError) -> OSError:
+    """netCDF's own write errors ("NetCDF: HDF error" on a full disk) as an OSError."""
+    return OSError(errno.EIO, str(exc))
 
 
 def set_attributes(target, attributes: dict) -> None:

@@ -26,6 +26,7 @@ from typing import Callable
 from kindyn.case import load_case
 from kindyn.case.load import apply_overrides, read_toml
 from kindyn.errors import MISSING, CaseError, KindynError
+from kindyn.output.atomic import check_output
 from kindyn.sweep import critical as crit
 from kindyn.sweep.execution import (STATUS_FAILED, STATUS_PENDING, LocalPool, check_local_layout, make_task,
                                     output_path, read_record)
@@ -279,7 +280,10 @@ def run_sweep(path, overrides=(), options: SweepOptions | None = None) -> SweepR
         raise CaseError(str(path), "sweep", "", "at least one valid point")  # pragma: no cover
     base = valid[0].case
     pool = sweep.pool()  # checks --workers / --threads-per-run before anything is written
-    sweep.out.mkdir(parents=True, exist_ok=True)
+    longest = max((p.identity for p in valid), key=len)  # every name the sweep writes, before computing
+    check_output(sweep.out, [f"{base.name}-sweep.nc", f"{base.name}-sweep.{base.output.figure_format}",
+                             f"points/{longest}.nc", f"points/{longest}.json"], file=str(path),
+                 key="output.name (or the case file's name)")
     sweep.summary_path = sweep.out / f"{base.name}-sweep.nc"
     sweep.say(f"kindyn sweep {path}: {len(listed)} point(s) over " + ", ".join(spec.keys)
               + f" ({spec.combine}), method {spec.method}")

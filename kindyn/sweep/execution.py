@@ -29,6 +29,7 @@ from collections import deque
 from pathlib import Path
 
 from kindyn.errors import KindynError, ParameterError
+from kindyn.output.atomic import atomic_stream
 
 STATUS_CONVERGED = "converged"
 STATUS_UNCONVERGED = "unconverged"
@@ -70,10 +71,9 @@ def output_path(out_dir, identity: str) -> Path:
 
 
 def write_json_atomic(path: Path, data: dict) -> None:
-    path.parent.mkdir(parents=True, exist_ok=True)
-    partial = path.with_name(path.name + ".part")
-    partial.write_text(json.dumps(data, allow_nan=False, default=str, indent=1), encoding="utf-8")
-    os.replace(partial, path)
+    text = json.dumps(data, allow_nan=False, default=str, indent=1)
+    with atomic_stream(path, "w", encoding="utf-8") as stream:  # a new temporary, no link followed
+        stream.write(text)
 
 
 def read_record(out_dir, identity: str) -> dict | None:
