@@ -62,6 +62,7 @@ from kindyn.diagnostics.resolution import counted_axes, diffusive_caution, diffu
 from kindyn.diagnostics.spectra import resolution_caution, shell_spectrum
 from kindyn.errors import CaseError, KindynError, NumericalError
 from kindyn.initial_fields import flow_field_hat, probe_indices, probe_vector, random_field_hat
+from kindyn.output.checkpoint import state_problem
 from kindyn.stepping import TABLEAUX
 from kindyn.timestep import Timing, choose_timing
 
@@ -119,6 +120,7 @@ class RunOutcome:
     shadow_grid: tuple | None = None  # the grid of the grid-dependence check (flagged runs)
     shadow_growth_rate: float = math.nan
     estimator: GrowthEstimate | None = None  # the growth estimator's own result (before the run's checks)
+    checkpoint_notes: tuple = ()  # one line each: a checkpoint discarded, or not written (the run went on)
 
     @property
     def trustworthy(self) -> bool:
@@ -153,13 +155,20 @@ class _State:
     step: int = 0
     log_amp: float = 0.0
     record: Record = field(default_factory=Record)
+    time_error: float | None = None  # the time-step error once measured (checkpointed: a resume keeps it)
 
 
 def run_growth(case, progress=None, checkpoint=None) -> RunOutcome:
     """Integrate until the growth rate converges (or a guard stops the run), then check it.
 
     ``progress(t, estimate, tolerance)`` is called now and then; ``checkpoint`` (optional) has
-    ``load(case) -> dict | None`` and ``save(case, state)`` and makes a killed run resumable.
+    ``load(case) -> dict | None`` and ``save(case, state)`` and makes a killed run resumable
+    (:class:`kindyn.output.checkpoint.Checkpoint`). A finished run saves its final state as a
+    *finished* checkpoint before returning; a run that loads one rebuilds its outcome from it without
+    stepping (a kill after the result was written but before the checkpoint was removed costs
+    nothing). A saved state that cannot be used is discarded (``checkpoint.discard(reason)``) and the
+    run starts afresh; what the checkpoint said (discarded, not written) is in
+    ``RunOutcome.checkpoint_notes``.
     """
     flow, settings = case.flow, case.run
     layout = make_box_layout(case.box, transform_settings(case.numerics), case.numerics)
@@ -172,17 +181,33 @@ def run_growth(case, progress=None, checkpoint=None) -> RunOutcome:
     if settings.min_time > max_time:
         raise CaseError(case.path, "run.min_time", settings.min_time, f"at most run.max_time = {max_time:g}")
     saved = checkpoint.load(case) if checkpoint else None
+    own_notes = []  # discards of a checkpoint object that cannot say them itself
+    if saved:
+        problem = _check_saved_state(saved, case.box.spectral_shape)
+        if problem:
+            if hasattr(checkpoint, "discard"):
+                checkpoint.discard(problem)
+            else:
+                own_notes.append(f"checkpoint {getattr(checkpoint, 'path', '')} discarded: {problem}; starting afresh")
+            saved = None
     if saved:  # the checkpoint holds the whole field: this process takes its block (any number of processes)
-        _check_saved_state(saved, getattr(checkpoint, "path", "the checkpoint"))
         state = _State(layout.local_part(saved["field_hat"]).astype(layout.complex_dtype), saved["time"],
-                       saved["step"], saved["log_amplitude"], Record(**saved["record"]))
+                       saved["step"], saved["log_amplitude"], Record(**saved["record"]), saved.get("time_error"))
     else:
         state = _State(initial_field(case, layout))
         _check_initial_field(state.b_hat, layout, case)
+    finished = (saved or {}).get("finished")
     started = wallclock.time()
     axes = counted_axes(flow, layout)
-    estimate, stop_reason, time_error = _integrate(case, layout, solver, timing, tolerance, max_time, state, axes,
-                                                   progress=progress, checkpoint=checkpoint, probe_time_step=True)
+    if finished:  # the run had finished: its outcome from the saved state, without stepping
+        estimate = (layout.from_root(_estimate(state.record, timing, tolerance, flow)) if state.record.estimate_times
+                    else _NOT_STARTED)
+        stop_reason, time_error = str(finished["stop_reason"]), float(finished["time_error"])
+    else:
+        estimate, stop_reason, time_error = _integrate(case, layout, solver, timing, tolerance, max_time, state,
+                                                       axes, progress=progress, checkpoint=checkpoint,
+                                                       probe_time_step=True)
+    integrated_stop_reason = stop_reason
     estimator = estimate
     ratio = settled_cutoff_ratio(state.record)
     diffusive = diffusive_resolution(flow, layout, case.eta, axes)
@@ -193,10 +218,13 @@ def run_growth(case, progress=None, checkpoint=None) -> RunOutcome:
     if "diffusive_scale" in flags:
         cautions.append(diffusive_caution(diffusive))
     shadow_grid, shadow_rate, grid_error = None, math.nan, math.nan
+    if finished:
+        shadow_grid = tuple(finished["shadow_grid"]) if finished["shadow_grid"] else None
+        shadow_rate, grid_error = float(finished["shadow_growth_rate"]), float(finished["grid_error"])
     if math.isfinite(estimate.growth_rate):
         if math.isnan(time_error):
             time_error = time_step_error(solver, layout, state, timing, flow, TABLEAUX[settings.scheme].order)
-        if flags:
+        if flags and not finished:
             shadow_grid, shadow = _shadow_run(case, layout, timing, tolerance, state.t, axes, estimate.growth_rate)
             if shadow is not None and math.isfinite(shadow.growth_rate) and math.isfinite(shadow.error):
                 shadow_rate = shadow.growth_rate
@@ -205,12 +233,21 @@ def run_growth(case, progress=None, checkpoint=None) -> RunOutcome:
                 grid_error = math.inf
         estimate, stop_reason = _final_estimate(estimate, time_error, grid_error, bool(flags), tolerance,
                                                 stop_reason, shadow_grid, _time_step_advice(layout))
+    if checkpoint and not finished:  # finished: before the caller writes the result (module Checkpoint docs)
+        whole = layout.gather_spectral(state.b_hat)
+        if layout.is_root:
+            checkpoint.save(case, {"field_hat": whole, "time": state.t, "step": state.step,
+                                   "log_amplitude": state.log_amp, "record": state.record, "time_error": time_error,
+                                   "finished": {"stop_reason": integrated_stop_reason, "time_error": time_error,
+                                                "shadow_grid": list(shadow_grid) if shadow_grid else None,
+                                                "shadow_growth_rate": shadow_rate, "grid_error": grid_error}})
+    notes = tuple(getattr(checkpoint, "notes", ())) + tuple(own_notes)
     field_whole = layout.gather_physical(layout.physical_from_spectral(state.b_hat))  # on the first process
     return RunOutcome(estimate, state.record, state.b_hat, field_whole, shell_spectrum(state.b_hat, layout), ratio,
                       bool(flags), state.step, state.t, timing, stop_reason, wallclock.time() - started, bool(saved),
                       _rms_speed(flow, layout), solver.kernels_used, solver.operator.kernels.fallback_reason,
                       tuple(flags), diffusive.scale, diffusive.ratio, "; ".join(cautions), shadow_grid, shadow_rate,
-                      estimator)
+                      estimator, notes)
 
 
 def _integrate(case, layout, solver, timing: Timing, tolerance: float, max_time: float, state: _State,
@@ -230,9 +267,8 @@ def _integrate(case, layout, solver, timing: Timing, tolerance: float, max_time:
     measures = run_series(axes)
     record = state.record
     last_save, last_report = wallclock.time(), 0.0
-    estimate = GrowthEstimate(math.nan, math.inf, math.nan, False, math.nan, (0.0, 0.0), 0, "not started")
+    estimate = _NOT_STARTED
     stop_reason = ""
-    time_error = None
     order = TABLEAUX[settings.scheme].order
     # samples since the last estimate, from the record itself: a resumed run keeps the schedule
     last = record.estimate_times[-1] if record.estimate_times else -math.inf
@@ -270,8 +306,9 @@ def _integrate(case, layout, solver, timing: Timing, tolerance: float, max_time:
                 if not probe_time_step:
                     stop_reason = "converged"
                     break
-                if time_error is None:
-                    time_error = time_step_error(solver, layout, state, timing, flow, order)
+                if state.time_error is None:
+                    state.time_error = time_step_error(solver, layout, state, timing, flow, order)
+                time_error = state.time_error
                 if estimate.error + RICHARDSON_SAFETY * time_error <= tolerance:
                     stop_reason = "converged"
                     break
@@ -295,11 +332,15 @@ def _integrate(case, layout, solver, timing: Timing, tolerance: float, max_time:
             whole = layout.gather_spectral(state.b_hat)
             if layout.is_root:
                 checkpoint.save(case, {"field_hat": whole, "time": state.t, "step": state.step,
-                                       "log_amplitude": state.log_amp, "record": record})
+                                       "log_amplitude": state.log_amp, "record": record,
+                                       "time_error": state.time_error})
             last_save = now
     if record.estimate_times and record.estimate_times[-1] != state.t:
         estimate = layout.from_root(_estimate(record, timing, tolerance, flow))
-    return estimate, stop_reason, (math.nan if time_error is None else time_error)
+    return estimate, stop_reason, (math.nan if state.time_error is None else state.time_error)
+
+
+_NOT_STARTED = GrowthEstimate(math.nan, math.inf, math.nan, False, math.nan, (0.0, 0.0), 0, "not started")
 
 
 def _time_step_advice(layout) -> str:
@@ -474,22 +515,27 @@ def _shadow_run(case, layout, timing: Timing, tolerance: float, duration: float,
 
 # --- guards against non-finite values ------------------------------------------------------------
 
-def _check_saved_state(saved: dict, where) -> None:
-    """A checkpoint whose field or record holds NaN/Inf is corrupt: say so (not "reduce run.cfl")."""
-    field_hat = np.asarray(saved["field_hat"])
+def _check_saved_state(saved: dict, spectral_shape) -> str:
+    """Why a loaded state cannot be resumed ("" when it can): shapes, lengths, non-finite numbers
+    (:func:`kindyn.output.checkpoint.state_problem`; a :class:`~kindyn.output.checkpoint.Checkpoint`
+    checks the same and its checksum when it loads, other checkpoint objects are checked here)."""
+    try:
+        record = saved["record"]
+        series = {name: np.asarray(record.get(name, []), float) for name in
+                  ("times", "log_energy", "log_amplitude", "estimate_times", "estimate_rates", "estimate_errors")}
+        series.update({f"series_{name}": np.asarray(v, float) for name, v in record.get("series", {}).items()})
+        probes = np.asarray(record.get("probes", []), float)
+        field_hat = np.asarray(saved["field_hat"])
+        problem = state_problem(field_hat.shape, spectral_shape, series, probes.shape, float(saved["time"]),
+                                int(saved["step"]), float(saved["log_amplitude"]))
+    except (KeyError, TypeError, ValueError, AttributeError) as exc:
+        return f"malformed ({type(exc).__name__}: {exc})"
+    if problem:
+        return problem
     bad = int(np.count_nonzero(~np.isfinite(field_hat)))
     if bad:
-        raise NumericalError(f"the checkpoint {where} is corrupt: {bad} of {field_hat.size} field coefficients "
-                             "are not finite; delete it (or run with --fresh) to start again")
-    for name in ("time", "log_amplitude"):
-        if not math.isfinite(float(saved[name])):
-            raise NumericalError(f"the checkpoint {where} is corrupt: its {name} is {saved[name]}; "
-                                 "delete it (or run with --fresh) to start again")
-    for name in ("times", "log_energy", "log_amplitude"):
-        values = np.asarray(saved["record"].get(name, []), float)
-        if values.size and not np.all(np.isfinite(values)):
-            raise NumericalError(f"the checkpoint {where} is corrupt: its sample record '{name}' holds "
-                                 "non-finite values; delete it (or run with --fresh) to start again")
+        return f"{bad} of {field_hat.size} field coefficients are not finite"
+    return ""
 
 
 def _check_initial_field(b_hat, layout, case) -> None:

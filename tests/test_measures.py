@@ -58,7 +58,7 @@ def test_checkpoint_keeps_the_series(tmp_path):
                     probes=[np.ones(4), np.zeros(4), np.ones(4)],
                     series={"cutoff_ratio": [1e-3, 2e-3, 4e-3], "relative_divergence": [0.0, 1e-16, 0.0]})
     point = Checkpoint(tmp_path / "m.checkpoint.nc")
-    point.save(case, {"field_hat": np.ones((3, 2, 2, 2), complex), "time": 1.0, "step": 4, "log_amplitude": 0.1,
+    point.save(case, {"field_hat": np.ones((3, *case.box.spectral_shape), complex), "time": 1.0, "step": 4, "log_amplitude": 0.1,
                       "record": record})
     state = point.load(case)
     assert state["record"]["series"] == record.series
