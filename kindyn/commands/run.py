@@ -37,10 +37,11 @@ progress_line = growth_progress_text  # the progress line without elapsed time a
 
 
 class AnnouncingCheckpoint(Checkpoint):
-    """A checkpoint that tells ``say`` when the run resumes from it (time, step, samples)."""
+    """A checkpoint that tells ``say`` when the run resumes from it (time, step, samples), and when
+    it is discarded or cannot be written (one line each)."""
 
     def __init__(self, path, say):
-        super().__init__(path)
+        super().__init__(path, notify=say)
         self.say = say
 
     def load(self, case):

@@ -21,7 +21,11 @@ def growth_point(case, output: Path, checkpoint: Path) -> dict:
     from kindyn.output.growth_file import record_growth_run
     from kindyn.run import run_growth
 
-    saved = Checkpoint(checkpoint)
+    import sys
+
+    # one line on the sweep's stderr when the point's checkpoint is discarded or cannot be written
+    saved = Checkpoint(checkpoint, notify=lambda text: print(f"kindyn sweep: note: point {Path(output).stem}: {text}",
+                                                             file=sys.stderr, flush=True))
     summary, _ = record_growth_run(output, case, run_growth(case, checkpoint=saved))
     saved.remove()
     return summary
