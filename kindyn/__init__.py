@@ -12,14 +12,14 @@ Conventions (fixed once for the whole package):
 
 Entry points for notebooks and scripts (:mod:`kindyn.api`; loaded on first use, so that
 ``import kindyn`` stays light): :func:`load_case` (a file, TOML text or a dict; a Python function
-as the flow), :func:`growth`, :func:`eigenmodes`, :func:`coefficients`, :func:`flow_statistics`,
+as the flow), :func:`growth`, :func:`eigenmodes`, :func:`coefficients`, :func:`closure`, :func:`flow_statistics`,
 :func:`parameter_sweep`. Each returns a result with the numbers as attributes, ``to_xarray()``,
 ``to_netcdf(path)`` and ``figure(path)``; nothing is printed unless ``progress`` asks for it.
 """
 
 from kindyn._version import __version__
 
-_ENTRY_POINTS = ("coefficients", "eigenmodes", "flow_statistics", "growth", "load_case", "parameter_sweep")
+_ENTRY_POINTS = ("closure", "coefficients", "eigenmodes", "flow_statistics", "growth", "load_case", "parameter_sweep")
 __all__ = ["__version__", *_ENTRY_POINTS]
 
 

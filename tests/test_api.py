@@ -26,8 +26,8 @@ def test_entry_points_are_exported_without_loading_heavy_libraries():
             "print(' '.join(names)); print(' '.join(m for m in ('matplotlib', 'numba', 'netCDF4', 'pyfftw') "
             "if m in sys.modules))")
     out = subprocess.run([sys.executable, "-c", code], capture_output=True, text=True, check=True).stdout.splitlines()
-    assert out[0].split() == ["__version__", "coefficients", "eigenmodes", "flow_statistics", "growth", "load_case",
-                              "parameter_sweep"]
+    assert out[0].split() == ["__version__", "closure", "coefficients", "eigenmodes", "flow_statistics", "growth",
+                              "load_case", "parameter_sweep"]
     assert out[1:] == [] or out[1].split() == []
     for name in kindyn.__all__[1:]:
         assert callable(getattr(kindyn, name)) and getattr(kindyn, name).__doc__

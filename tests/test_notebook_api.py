@@ -232,3 +232,49 @@ def test_a_run_that_resumes_from_a_checkpoint_says_so(tmp_path, write_case, caps
     captured = capsys.readouterr()
     assert "kindyn run: note: resuming from the checkpoint" in captured.err  # also with --quiet
     assert '"resumed": true' in captured.out and not (out / "resume.checkpoint.nc").exists()
+
+
+CLOSURE = """\
+[domain]
+grid = [8, 8, 16]
+lengths = ["2*pi", "2*pi", "4*pi"]
+[flow]
+type = "abc"
+[magnetic]
+Rm = 0.5
+[run]
+tolerance = 1e-5
+[testfield]
+modes = [1]
+onset_check = false
+[output]
+figure = false
+"""
+
+
+def test_closure_through_the_api_equals_the_command(tmp_path, write_case, capsys):
+    """Common practice (two entry points of one computation): kindyn.closure gives the numbers, text and
+    file of `kindyn closure` on the same case (the command itself is checked against direct runs in
+    tests/test_testfield_scales.py); the same process, so equal to round-off of the measured choices
+    (FFTW plans, kernel threads) only."""
+    import json
+
+    path = write_case(CLOSURE, "scales.toml")
+    result = kindyn.closure(kindyn.load_case(path))
+    assert capsys.readouterr().out == ""  # nothing printed unless asked
+    assert main(["closure", str(path), "--out", str(tmp_path / "o"), "--json", "--quiet"]) == 0
+    data = json.loads(capsys.readouterr().out)
+    assert result.K == data["K"] == [0.5]
+    np.testing.assert_allclose(result.direct_growth_rate, data["direct_growth_rate"], rtol=1e-6)
+    for name, prediction in data["predictions"].items():
+        np.testing.assert_allclose(result.predictions[name]["growth_rate"], prediction["growth_rate"], rtol=1e-6,
+                                   err_msg=name)
+    assert result.predictions["memory"]["holds"] == data["predictions"]["memory"]["holds"] == [True]
+    assert result.cautions == data["cautions"] and str(result).splitlines()[0].startswith("scales: abc flow")
+    ds = result.to_xarray()
+    with xr.open_dataset(tmp_path / "o" / "scales-closure.nc") as cli:
+        cli = cli.load()
+    assert sorted(ds.variables) == sorted(cli.variables) and dict(ds.sizes) == dict(cli.sizes)
+    np.testing.assert_allclose(ds["growth_rate"].values, cli["growth_rate"].values, rtol=1e-6)
+    assert ds.attrs["kindyn_command"] == "kindyn.api.closure (Python)"
+    assert result.figure(tmp_path / "scales.svg").read_text(encoding="utf-8").lstrip().startswith("<?xml")

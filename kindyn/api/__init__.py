@@ -9,6 +9,7 @@ A notebook session::
     run.figure("abc.pdf")                      # the figure of `kindyn run`, as PDF
     modes = kindyn.eigenmodes(case)            # leading eigenvalues (Krylov)
     tensors = kindyn.coefficients(case)        # alpha, eta tensors with SOCA beside them
+    scales = kindyn.closure(case)              # mean-field closures across scales beside direct runs
     flow = kindyn.flow_statistics(case)        # u_rms, helicity, spectra, SOCA estimates
     sweep = kindyn.parameter_sweep("cases/sweep-abc-rm.toml", out="kindyn-output")
 
@@ -37,7 +38,7 @@ from pathlib import Path
 
 from kindyn.api.cases import PythonFunction, load_case
 
-__all__ = ["PythonFunction", "coefficients", "eigenmodes", "flow_statistics", "growth", "load_case",
+__all__ = ["PythonFunction", "closure", "coefficients", "eigenmodes", "flow_statistics", "growth", "load_case",
            "parameter_sweep"]
 
 
@@ -138,16 +139,13 @@ def eigenmodes(case, count: int | None = None, progress=None, with_fields: bool 
 def coefficients(case, progress=None):
     """alpha and eta tensors by the test-field method with SOCA beside them (and the closure check's
     direct run when the case asks for it); a :class:`~kindyn.api.results.CoefficientsResult`."""
-    import time
-
     from kindyn.api.results import CoefficientsResult
-    from kindyn.commands.progress import Progress
-    from kindyn.commands.testfield import direct_growth_run, finding_lines, summary_of
+    from kindyn.commands.testfield import direct_growth_run, finding_lines, summary_of, testfield_progress
     from kindyn.testfield.calibration import calibrate
+    from kindyn.testfield.settings import plan_from_case
 
     sink, close = _progress_sink(progress)
-    started = time.monotonic()
-    say = (lambda text: sink(Progress("testfield", "  " + text, time.monotonic() - started))) if sink else None
+    say = testfield_progress(case, plan_from_case(case), lambda p, force: sink(p)) if sink else None
     try:
         result = calibrate(case, progress=say, direct_run=direct_growth_run)
     finally:
@@ -159,6 +157,28 @@ def coefficients(case, progress=None):
     cautions += finding_lines(result)
     summary["cautions"] = cautions
     return CoefficientsResult(case, result, summary, cautions, _command("coefficients"))
+
+
+def closure(case, progress=None):
+    """The mean-field closure across scales (``kindyn closure``): for every test-field wavenumber K of
+    the case's ``[testfield]`` section, the growth rate of the mean-field mode predicted from the
+    test-field coefficients (steady, SOCA, local, and at the mode's own growth rate with its harmonics
+    coupled) beside a direct run in the box of length 2 pi/K; a
+    :class:`~kindyn.api.results.ClosureResult` (``K``, ``direct_growth_rate``, ``predictions``, ...)."""
+    import time
+
+    from kindyn.api.results import ClosureResult
+    from kindyn.commands.closure import compare
+    from kindyn.commands.progress import Progress
+
+    sink, close = _progress_sink(progress)
+    started = time.monotonic()
+    say = (lambda text: sink(Progress("closure", "  " + text, time.monotonic() - started))) if sink else None
+    try:
+        comparison, table, summary, cautions = compare(case, say)
+    finally:
+        close()
+    return ClosureResult(case, comparison, summary, cautions, _command("closure"), table)
 
 
 def flow_statistics(case):

@@ -215,6 +215,38 @@ class CoefficientsResult(Result):
         _figure(dataclasses.replace(self.case, output=output), self.outcome, path)
 
 
+class ClosureResult(Result):
+    """The closure across scales (:func:`kindyn.api.closure`, ``kindyn closure``): ``K``,
+    ``direct_growth_rate``, ``direct_growth_rate_error``, ``predictions`` (name -> ``growth_rate``,
+    ``error``, ``relative_difference``, ``difference_in_errors``, ``holds``), ``local_closure``, ... as
+    in the JSON object; ``outcome`` is the :class:`~kindyn.testfield.scales.ScaleComparison`, ``table``
+    its arrays (those of the file)."""
+
+    kind = "closure"
+    suffix = "-closure"
+
+    def __init__(self, case, comparison, summary, cautions, command, table):
+        super().__init__(case, comparison, summary, cautions, command)
+        self.table = table
+
+    def lines(self):
+        from kindyn.commands.closure import text_report
+
+        return text_report(self.case, self.outcome)
+
+    def _write(self, path):
+        from kindyn.commands.closure import file_attributes
+        from kindyn.output.closure_file import write_closure_file
+
+        write_closure_file(path, self.case, self.table, file_attributes(self.outcome, self.summary, self.cautions),
+                           command=self.command)
+
+    def _figure(self, path, style):
+        from kindyn.commands.closure import closure_figure_of
+
+        closure_figure_of(path, self.case, self.outcome, style)
+
+
 class SweepResult(Result):
     """A sweep (:func:`kindyn.api.parameter_sweep`, ``kindyn sweep``): ``points`` (one dict per point:
     swept values, ``growth_rate``, ``growth_rate_error``, ``status``, ...), ``critical``, ``windows``,

@@ -129,51 +129,74 @@ def text_report(case, comparison) -> list[str]:
     return lines
 
 
+def closure_cautions(comparison) -> list[str]:
+    """The cautions of a comparison (its notes, the calibration's notes and findings)."""
+    from kindyn.commands.testfield import finding_lines
+
+    return list(comparison.notes) + list(comparison.calibration.notes) + finding_lines(comparison.calibration)
+
+
+def file_attributes(comparison, summary, cautions) -> dict:
+    """The global attributes of ``NAME-closure.nc`` beyond the case's."""
+    return {
+        "caution": "; ".join(cautions),
+        "local_closure": json.dumps(summary["local_closure"]),
+        "harmonics": json.dumps(comparison.harmonics),
+        "memory": json.dumps(summary["memory"]),
+        "agreement": f"a closure holds where |p - p_direct| <= {AGREEMENT_SIGMAS:g} sqrt(err^2 + err_direct^2)",
+        "averaging_axis": "xyz"[comparison.axis],
+        "flow_periods_in_box": comparison.periods,
+    }
+
+
+def closure_figure_of(path, case, comparison, style=None) -> None:
+    """The figure of ``kindyn closure`` (and :meth:`kindyn.api.results.ClosureResult.figure`)."""
+    from kindyn.output.figures import FigureStyle
+    from kindyn.output.figures_testfield import closure_figure
+    from kindyn.testfield.settings import plan_from_case
+
+    shown = ("measured", "soca", "local", "memory")
+    closure_figure(path, comparison.K, comparison.direct, comparison.direct_error,
+                   {LABELS[n]: (comparison.predictions[n], comparison.prediction_errors[n]) for n in shown},
+                   f"{case.name}: {case.flow_type}, Rm = {case.Rm:.4g}: closures versus direct runs",
+                   note=f"direct runs in boxes with L = 2 pi/K; memory: test fields at the mode's own p, "
+                        f"harmonics coupled to order {plan_from_case(case).closure_coupling}",
+                   style=style or FigureStyle.from_output(case.output))
+
+
+def compare(case, progress=None):
+    """``(comparison, table, summary, cautions)`` of ``case`` (the command and :func:`kindyn.api.closure`);
+    ``progress(text)`` receives progress lines."""
+    from kindyn.testfield.calibration import calibrate
+
+    comparison = compare_scales(case, calibrate, direct_run, progress)
+    table = table_of(comparison)
+    cautions = closure_cautions(comparison)
+    return comparison, table, summary_of(case, comparison, table, cautions), cautions
+
+
 def execute(args) -> int:
     report = Reporter("closure", args)
     case = case_from_args(args)
     from kindyn.output.figures import FigureStyle
-    from kindyn.testfield.calibration import calibrate
     from kindyn.testfield.settings import plan_from_case
 
     plan_from_case(case)  # every check that needs the box, before any output folder is made
-    style = FigureStyle.from_output(case.output)
-    png_name = style.path(".", f"{case.name}-closure").name
-    out = output_folder(args, case, [f"{case.name}-closure.nc", png_name])
+    out = output_folder(args)
     nc_path = out / f"{case.name}-closure.nc"
-    png_path = out / png_name
+    style = FigureStyle.from_output(case.output)
+    png_path = style.path(out, f"{case.name}-closure")
     report.progress(f"kindyn closure {case.path}: {case.flow_type} flow, grid {list(case.box.grid)}, "
                     f"Rm = {case.Rm:.6g}, K = {2 * math.pi / case.box.lengths[plan_from_case(case).axis]:.4g} x "
                     f"{list(case.testfield.modes or [1])}")
     progress = None if report.quiet else (lambda text: report.progress("  " + text))
-    comparison = compare_scales(case, calibrate, direct_run, progress)
-    table = table_of(comparison)
-    cautions = list(comparison.notes) + [n for n in comparison.calibration.notes]
-    from kindyn.commands.testfield import finding_lines
-
-    cautions += finding_lines(comparison.calibration)
-    summary = summary_of(case, comparison, table, cautions)
+    comparison, table, summary, cautions = compare(case, progress)
     from kindyn.output.closure_file import write_closure_file
 
-    with results_kept(lambda: summary):  # if a file cannot be written
-        write_closure_file(nc_path, case, table, {
-            "caution": "; ".join(cautions),
-            "local_closure": json.dumps(summary["local_closure"]),
-            "harmonics": json.dumps(comparison.harmonics),
-            "memory": json.dumps(summary["memory"]),
-            "agreement": f"a closure holds where |p - p_direct| <= {AGREEMENT_SIGMAS:g} sqrt(err^2 + err_direct^2)",
-            "averaging_axis": "xyz"[comparison.axis],
-            "flow_periods_in_box": comparison.periods,
-        }, command=report.command_line)
-        if case.output.figure:
-            from kindyn.output.figures_testfield import closure_figure
-
-            shown = ("measured", "soca", "local", "memory")
-            closure_figure(png_path, comparison.K, comparison.direct, comparison.direct_error,
-                           {LABELS[n]: (comparison.predictions[n], comparison.prediction_errors[n]) for n in shown},
-                           f"{case.name}: {case.flow_type}, Rm = {case.Rm:.4g}: closures versus direct runs",
-                           note=f"direct runs in boxes with L = 2 pi/K; memory: test fields at the mode's own p, "
-                                f"harmonics coupled to order {plan_from_case(case).closure_coupling}", style=style)
+    write_closure_file(nc_path, case, table, file_attributes(comparison, summary, cautions),
+                       command=report.command_line)
+    if case.output.figure:
+        closure_figure_of(png_path, case, comparison, style)
     summary["output"] = str(nc_path)
     summary["figure"] = str(png_path) if case.output.figure else None
     for line in text_report(case, comparison):
