@@ -182,10 +182,11 @@ def execute(args) -> int:
     from kindyn.testfield.settings import plan_from_case
 
     plan_from_case(case)  # every check that needs the box, before any output folder is made
-    out = output_folder(args)
-    nc_path = out / f"{case.name}-closure.nc"
     style = FigureStyle.from_output(case.output)
-    png_path = style.path(out, f"{case.name}-closure")
+    png_name = style.path(".", f"{case.name}-closure").name
+    out = output_folder(args, case, [f"{case.name}-closure.nc", png_name])
+    nc_path = out / f"{case.name}-closure.nc"
+    png_path = out / png_name
     report.progress(f"kindyn closure {case.path}: {case.flow_type} flow, grid {list(case.box.grid)}, "
                     f"Rm = {case.Rm:.6g}, K = {2 * math.pi / case.box.lengths[plan_from_case(case).axis]:.4g} x "
                     f"{list(case.testfield.modes or [1])}")
@@ -193,10 +194,11 @@ def execute(args) -> int:
     comparison, table, summary, cautions = compare(case, progress)
     from kindyn.output.closure_file import write_closure_file
 
-    write_closure_file(nc_path, case, table, file_attributes(comparison, summary, cautions),
-                       command=report.command_line)
-    if case.output.figure:
-        closure_figure_of(png_path, case, comparison, style)
+    with results_kept(lambda: summary):  # if a file cannot be written
+        write_closure_file(nc_path, case, table, file_attributes(comparison, summary, cautions),
+                           command=report.command_line)
+        if case.output.figure:
+            closure_figure_of(png_path, case, comparison, style)
     summary["output"] = str(nc_path)
     summary["figure"] = str(png_path) if case.output.figure else None
     for line in text_report(case, comparison):
