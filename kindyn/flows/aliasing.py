@@ -30,6 +30,7 @@ import numpy as np
 
 from kindyn.box import Box
 from kindyn.errors import ParameterError
+from kindyn.flows.gridded import grid_from_hat, hat_from_grid
 
 ALIAS_TOLERANCE = 1e-6
 SHIFT = 0.37
@@ -42,7 +43,7 @@ def _shifted_interpolant(u_hat: np.ndarray, box, axis: int, shift: float) -> np.
     m, k = box.mode_numbers[axis], box.wavenumbers[axis]
     keep = 2 * np.abs(m) < box.grid[axis]          # the axis's Nyquist mode is ambiguous off the grid
     phase = np.where(keep, np.exp(1j * k * shift * box.spacing[axis]), 0.0)
-    return np.fft.irfftn(u_hat * phase, s=box.grid, axes=(1, 2, 3), norm="forward")
+    return grid_from_hat(u_hat * phase, box.grid)
 
 
 def axis_mismatch(evaluate, u: np.ndarray, box, axis: int, t: float, u_hat: np.ndarray | None = None) -> float:
@@ -52,7 +53,7 @@ def axis_mismatch(evaluate, u: np.ndarray, box, axis: int, t: float, u_hat: np.n
     coords[axis] = coords[axis] + SHIFT * box.spacing[axis]
     exact = evaluate(*coords, t)
     if u_hat is None:
-        u_hat = np.fft.rfftn(u, axes=(1, 2, 3), norm="forward")
+        u_hat = hat_from_grid(u)
     interpolant = _shifted_interpolant(u_hat, box, axis, SHIFT)
     scale = max(float(np.mean(np.sum(u**2, axis=0))), float(np.mean(np.sum(exact**2, axis=0))))
     if scale == 0:
@@ -94,7 +95,7 @@ def points_needed(evaluate, box, axis: int, t: float) -> int | None:
 
         u = sample(*fine.coordinates, t)
         if axis_mismatch(sample, u, fine, axis, t) <= ALIAS_TOLERANCE:
-            need = 3 * highest_mode(np.fft.rfftn(u, axes=(1, 2, 3), norm="forward"), fine, axis) + 1
+            need = 3 * highest_mode(hat_from_grid(u), fine, axis) + 1
             if need <= grid[axis]:
                 return need
         factor *= 2
@@ -102,7 +103,7 @@ def points_needed(evaluate, box, axis: int, t: float) -> int | None:
 
 def check_aliasing(evaluate, u: np.ndarray, box, t: float) -> None:
     """Refuse a flow whose grid samples are another flow (module docstring)."""
-    u_hat = np.fft.rfftn(u, axes=(1, 2, 3), norm="forward")
+    u_hat = hat_from_grid(u)
     for axis, name in enumerate("xyz"):
         mismatch = axis_mismatch(evaluate, u, box, axis, t, u_hat)
         if mismatch <= ALIAS_TOLERANCE:

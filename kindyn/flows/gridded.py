@@ -1,4 +1,5 @@
-"""Velocity fields held as Fourier coefficients on the box's half grid (numpy.fft only).
+"""Velocity fields held as Fourier coefficients on the box's half grid: the one place where a flow
+uses an FFT (numpy.fft, on the whole grid, while the flow is built from data).
 
 Shared by the flows that are data rather than formulas (random helical ensembles, velocity files,
 user flows projected onto solenoidal fields).
