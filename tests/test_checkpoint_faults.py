@@ -265,3 +265,22 @@ def test_failed_checkpoint_writes_warn_once_and_the_run_goes_on(setting, tmp_pat
     assert said[0].startswith("kindyn run: ")
     assert {k: result[k] for k in KEYS} == {k: fresh[k] for k in KEYS}
     assert sorted(p.name for p in out.iterdir()) == ["c.nc"]
+
+
+def test_a_finished_run_removes_the_temporaries_a_killed_checkpoint_write_left(tmp_path):
+    """A run killed while writing a checkpoint leaves ``NAME.checkpoint.nc.<hex>.part``; the run
+    that finishes removes it with its checkpoint, and never what a planted link points to
+    (`common practice`)."""
+    case_file = tmp_path / "case.toml"
+    case_file.write_text(CASE.replace("checkpoint_seconds = 1e-9", "checkpoint_seconds = 1e6"))
+    out = tmp_path / "out"
+    out.mkdir()
+    left = out / "case.checkpoint.nc.0123abcd.part"
+    left.write_bytes(b"half a checkpoint")
+    outside = tmp_path / "outside.txt"
+    outside.write_text("keep me")
+    (out / "case.checkpoint.nc.4567cdef.part").symlink_to(outside)
+    with contextlib.redirect_stdout(io.StringIO()), contextlib.redirect_stderr(io.StringIO()):
+        assert main(["run", str(case_file), "--out", str(out), "--quiet"]) == 0
+    assert sorted(p.name for p in out.iterdir()) == ["case.nc"]
+    assert outside.read_text() == "keep me"

@@ -31,6 +31,7 @@ from pathlib import Path
 import numpy as np
 
 from kindyn.errors import clip
+from kindyn.output.atomic import remove_temporaries
 from kindyn.output.netcdf import atomic_dataset, read_dataset
 
 _SERIES = ("times", "log_energy", "log_amplitude", "estimate_times", "estimate_rates", "estimate_errors")
@@ -170,12 +171,11 @@ class Checkpoint:
         return None
 
     def remove(self) -> None:
-        for name in (self.path, self.path.with_name(self.path.name + ".part")):
-            # a run killed while writing a checkpoint leaves its temporary file behind; a directory
-            # at the path is the user's (reported when the run started) and left alone
-            if name.is_dir() and not name.is_symlink():
-                continue
-            name.unlink(missing_ok=True)
+        """Remove the checkpoint and the temporaries a run killed while writing one left behind; a
+        directory at the path is the user's (reported when the run started) and left alone."""
+        if not (self.path.is_dir() and not self.path.is_symlink()):
+            self.path.unlink(missing_ok=True)
+        remove_temporaries(self.path)
 
 
 def _state_of(data: dict, case) -> dict:
