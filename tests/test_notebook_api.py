@@ -137,6 +137,17 @@ def test_text_dict_and_overrides_make_the_same_case(tmp_path, write_case):
     assert run.growth_rate == pytest.approx(-0.25, abs=1e-9)  # B = u decays as exp(-eta t), eta = 1/4
 
 
+def test_growth_cautions_carry_the_diffusive_scale_criterion():
+    """ABC at Rm = 4 on 8^3: k_cut l = 2 sqrt(eta/sqrt 3) = 0.76 < 1 (the criterion of
+    kindyn.diagnostics.resolution); with run.resolution_threshold = 0.5 the spectrum criterion does not
+    trip, so the caution must name the diffusive scale only, as ``kindyn run`` does."""
+    run = kindyn.growth(kindyn.load_case(QUICK, overrides={"run.resolution_threshold": 0.5,
+                                                           "run.tolerance": 1e-3}))
+    assert run.summary["resolution_flags"] == ["diffusive_scale"]
+    (caution,) = [c for c in run.cautions if "under-resolved" in c or "diffusive scale" in c]
+    assert "diffusive scale" in caution and "at the dealiasing cut-off" not in caution
+
+
 def test_case_errors_name_file_key_value_and_expected():
     with pytest.raises(CaseError) as info:
         kindyn.load_case({"domain": {"grid": [8, 8, 8]}, "flow": {"type": "abc"}, "magnetic": {"Rm": -1.0}})

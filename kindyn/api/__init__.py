@@ -96,7 +96,6 @@ def growth(case, progress=None, checkpoint=None):
     from kindyn.commands.progress import growth_reporter
     from kindyn.commands.common import settle_estimate
     from kindyn.commands.run import run_cautions
-    from kindyn.diagnostics.spectra import resolution_caution
     from kindyn.output.growth_file import result_summary
     from kindyn.run import run_growth
 
@@ -109,8 +108,7 @@ def growth(case, progress=None, checkpoint=None):
     if checkpoint is not None:  # as `kindyn run`: a finished run needs its checkpoint no more
         checkpoint.remove()
     summary = settle_estimate(result_summary(case, outcome))
-    resolution = (resolution_caution(outcome.cutoff_ratio, case.run.resolution_threshold)
-                  if outcome.resolution_warning else "")
+    resolution = outcome.resolution_caution if outcome.resolution_warning else ""
     cautions = run_cautions(summary, outcome, resolution)
     summary["cautions"] = cautions
     return GrowthResult(case, outcome, summary, cautions, _command("growth"))

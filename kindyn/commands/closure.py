@@ -44,7 +44,6 @@ def add_arguments(parser) -> None:
 def direct_run(case):
     """The direct run of one mean-field mode (``kindyn run`` on the shrunk case): ``(rate, error, b_hat,
     caution)``; the caution says when the run did not converge or may be under-resolved."""
-    from kindyn.diagnostics.spectra import resolution_caution
     from kindyn.run import run_growth
 
     outcome = run_growth(case)
@@ -52,7 +51,7 @@ def direct_run(case):
     if not (outcome.estimate.converged and outcome.stop_reason == "converged"):
         notes.append(f"not converged ({outcome.stop_reason})")
     if outcome.resolution_warning:
-        notes.append(resolution_caution(outcome.cutoff_ratio, case.run.resolution_threshold))
+        notes.append(outcome.resolution_caution)
     return outcome.estimate.growth_rate, outcome.estimate.error, outcome.field_hat, "; ".join(notes)
 
 
