@@ -24,6 +24,7 @@ import netCDF4
 import pytest
 
 from kindyn.cli import main
+from tests.small_cases import DECAYING_ABC, NO_FIGURE
 
 DATA = Path(__file__).resolve().parent / "data" / "cf"
 REQUIRED = os.environ.get("KINDYN_REQUIRE_CF") == "1"
@@ -63,19 +64,7 @@ def check(path) -> dict:
     return found
 
 
-CASE = """\
-[domain]
-grid = [8, 8, 8]
-[flow]
-type = "abc"
-[magnetic]
-Rm = 4.0
-initial_field = "flow"
-[numerics]
-planning = "estimate"
-[output]
-figure = false
-"""
+CASE = DECAYING_ABC + NO_FIGURE
 PLANAR = """\
 [domain]
 lengths = ["2*pi", "2*pi", "4*pi"]

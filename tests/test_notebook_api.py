@@ -23,6 +23,7 @@ import kindyn
 from kindyn.cli import main
 from kindyn.commands.common import with_error
 from kindyn.errors import CaseError
+from tests.small_cases import DECAYING_ABC
 
 xr = pytest.importorskip("xarray")
 
@@ -30,17 +31,7 @@ ROOT = Path(__file__).resolve().parent.parent
 CASES = ROOT / "cases"
 README = ROOT / "README.md"
 
-QUICK = """\
-[domain]
-grid = [8, 8, 8]
-[flow]
-type = "abc"
-[magnetic]
-Rm = 4.0
-initial_field = "flow"
-[numerics]
-planning = "estimate"
-"""
+QUICK = DECAYING_ABC
 
 
 def roberts(x, y, z, t):

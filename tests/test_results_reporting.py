@@ -39,20 +39,9 @@ from kindyn.cli import main
 from kindyn.output.netcdf import read_dataset
 from kindyn.testfield.calibration import TestFieldResult, calibrate
 from kindyn.testfield.kernels import fit_lorentzian
+from tests.small_cases import DECAYING_ABC, NO_FIGURE
 
-QUICK = """\
-[domain]
-grid = [8, 8, 8]
-[flow]
-type = "abc"
-[magnetic]
-Rm = 4.0
-initial_field = "flow"
-[numerics]
-planning = "estimate"
-[output]
-figure = false
-"""
+QUICK = DECAYING_ABC + NO_FIGURE
 
 COARSE = QUICK.replace('initial_field = "flow"', 'initial_field = "random"\nseed = 3').replace(
     "Rm = 4.0", "Rm = 20.0") + "[run]\nmax_time = 20.0\n"  # under-resolved on 8^3 (test_run_output.py)
