@@ -160,7 +160,8 @@ class DaskPool:
         """Run ``tasks`` through ``client``. With ``lost_timeout``, a cluster without any worker for
         that many seconds (its jobs cancelled or past their walltime) ends the run: the points still
         unfinished get a failed record saying so (their files are not written, so the same command
-        runs them again), instead of waiting for workers that will not come."""
+        runs them again), instead of waiting for workers that will not come; a point whose worker
+        wrote its record before it went counts as finished."""
         self.check_threads(client, tasks)
         self.parallelism = max(1, sum(client.nthreads().values()))
         futures = {}
@@ -190,7 +191,8 @@ class DaskPool:
             if time.monotonic() - no_worker_since >= lost_timeout:
                 message = (f"lost: no Dask worker left for {lost_timeout:g} s (worker jobs cancelled or past their "
                            "walltime); run the same command again to finish this point")
-                for future in pending:
+                for future in pending:  # a worker may have written its point's record just before it went
                     future.cancel()
-                    on_result(futures[future], failed_record(futures[future], message))
+                    task = futures[future]
+                    on_result(task, read_record(task["out_dir"], task["identity"]) or failed_record(task, message))
                 return
