@@ -159,6 +159,7 @@ def test_progress_has_an_eta_for_both_methods(write_case, tmp_path, capsys):
     the ETA is (t_c - t)/2."""
     from kindyn.case import load_case
     from kindyn.commands.testfield import testfield_progress
+    from kindyn.testfield.calibration import CalibrationProgress
     from kindyn.testfield.settings import plan_from_case
 
     path = write_case(ABC_CASE, "abc-eta.toml")
@@ -177,7 +178,8 @@ def test_progress_has_an_eta_for_both_methods(write_case, tmp_path, capsys):
     progress = testfield_progress(case, plan, lambda p, force: updates.append(p), clock=lambda: float(next(clock)))
     C, p = 50.0, 1.5
     for t in (2.0, 4.0, 6.0, 8.0):
-        progress(f"t = {t:10.4g}   worst error / tolerance = {C * t ** -p:.17g}")
+        progress(CalibrationProgress(f"t = {t:10.4g}   worst error / tolerance = {C * t ** -p:.3g}", time=t,
+                                     worst_ratio=C * t ** -p))
     t_c = C ** (1 / p)
     last = updates[-1]
     assert last.until == "convergence" and last.fraction == pytest.approx(8.0 / t_c, rel=1e-9)

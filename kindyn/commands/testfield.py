@@ -34,7 +34,6 @@ the time it reaches 1 (:class:`kindyn.commands.progress.GrowthEta`, as for a gro
 from __future__ import annotations
 
 import math
-import re
 import time
 
 import numpy as np
@@ -62,55 +61,36 @@ def add_arguments(parser) -> None:
 
 
 
-_TIME_LINE = re.compile(r"t =\s*(\S+)\s+worst error / tolerance =\s*(\S+)")
-
-
-def solve_total(plan) -> int:
-    """Test fields a direct steady solve solves one by one: the three uniform ones and four per K and
-    averaging direction."""
-    return (3 if plan.uniform else 0) + 4 * len(plan.wavenumbers) * len(plan.directions)
-
-
 def testfield_progress(case, plan, sink, command: str = "testfield", clock=time.monotonic):
-    """A ``progress(text)`` callable for :func:`kindyn.testfield.calibration.calibrate` that sends
+    """A ``progress(report)`` callable for :func:`kindyn.testfield.calibration.calibrate` that sends
     :class:`~kindyn.commands.progress.Progress` updates with an ETA to ``sink(update, force)`` (``force``
-    is True: the driver reports at most every two seconds itself; see the
-    module docstring). The driver reports plain text: a direct solve's line per test field
-    (``... GMRES residual ...``), time stepping's ``t = ...   worst error / tolerance = ...``; any
-    other line is passed on with the elapsed time only."""
+    is True: the driver reports at most every two seconds itself; see the module docstring). A report
+    (:class:`~kindyn.testfield.calibration.CalibrationProgress`) of a direct solve carries ``solved`` of
+    ``solves``, one of time stepping its ``time`` and ``worst_ratio``."""
     from kindyn.commands.progress import GrowthEta, Progress
 
     started = clock()
-    total = solve_total(plan)
     limit = plan.max_time if plan.max_time else math.inf
     growth = GrowthEta(1.0, limit, plan.min_time, clock)
-    solved, first = [0], [started]
+    first = [started]
 
-    def progress(text: str) -> None:
+    def progress(report) -> None:
         elapsed = clock() - started
-        if plan.method == "direct" and "GMRES residual" in text:
-            solved[0] += 1
-            done = min(solved[0], total)
+        if report.solved is not None:
+            done, total = report.solved, report.solves
             if done == 1:  # the set-up (layout, kernels, onset check) came before: time the solves from here
                 first[0] = clock()
             eta = (clock() - first[0]) / (done - 1) * (total - done) if done > 1 else None
-            fraction = done / total
-            sink(Progress(command, f"  solve {done}/{total}: {text}", elapsed, eta, fraction, "remaining solves"),
-                 True)
+            sink(Progress(command, f"  solve {done}/{total}: {report.text}", elapsed, eta, done / total,
+                          "remaining solves"), True)
             return
-        match = _TIME_LINE.search(text)
-        if match:
-            try:
-                t, worst = float(match.group(1)), float(match.group(2))
-            except ValueError:
-                t = worst = math.nan
-            if math.isfinite(t):
-                elapsed, eta, fraction, until = growth.observe(t, worst)
-                if eta is not None and not math.isfinite(eta):
-                    eta, fraction, until = None, None, ""
-                sink(Progress(command, "  " + text, elapsed, eta, fraction, until), True)  # the driver throttles
-                return
-        sink(Progress(command, "  " + text, elapsed), True)
+        if report.time is not None and math.isfinite(report.time):
+            elapsed, eta, fraction, until = growth.observe(report.time, report.worst_ratio)
+            if eta is not None and not math.isfinite(eta):
+                eta, fraction, until = None, None, ""
+            sink(Progress(command, "  " + report.text, elapsed, eta, fraction, until), True)  # the driver throttles
+            return
+        sink(Progress(command, "  " + report.text, elapsed), True)
 
     return progress
 

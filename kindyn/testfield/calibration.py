@@ -47,6 +47,22 @@ ONSET_MARGIN = 1e-8
 UNDER_RESOLVED = "possibly under-resolved"
 
 
+@dataclass(frozen=True)
+class CalibrationProgress:
+    """One progress report of a calibration: ``text`` for people (``str()`` of the report), and the
+    numbers an ETA needs: for direct solves ``solved`` of ``solves`` test fields, for time stepping the
+    simulation ``time`` and the ``worst_ratio`` of the coefficients' error to their tolerance."""
+
+    text: str
+    solved: int | None = None
+    solves: int | None = None
+    time: float | None = None
+    worst_ratio: float | None = None
+
+    def __str__(self) -> str:
+        return self.text
+
+
 @dataclass
 class TestFieldResult:
     """Everything ``kindyn testfield`` reports (see module docstring for shapes)."""
@@ -178,6 +194,7 @@ def _direct(case, plan, result: TestFieldResult, progress) -> None:
             if not math.isfinite(rate):
                 result.notes.append(f"onset check for the {name} test problems did not converge (ARPACK)")
     residuals, ratios = [], []
+    solves = sum(len(fields) for _, _, field_sets in jobs for fields in field_sets)
     for name, axis, field_sets in jobs:
         emf_full, emf_soca = [], []
         for fields in field_sets:
@@ -190,7 +207,9 @@ def _direct(case, plan, result: TestFieldResult, progress) -> None:
                 emf_full.append(op.emf(0.0, b_full)[0])
                 emf_soca.append(op.emf(0.0, b_soca)[0])
                 if progress:
-                    progress(f"{f.label}: GMRES residual {info['residual']:.2g}, {info['iterations']} applications")
+                    progress(CalibrationProgress(
+                        f"{f.label}: GMRES residual {info['residual']:.2g}, {info['iterations']} applications",
+                        solved=len(residuals), solves=solves))
         full, soca = np.stack(emf_full), np.stack(emf_soca)
         if name == "uniform":
             values = _uniform_coefficients(full, soca)
@@ -218,7 +237,8 @@ def _time(case, plan, result: TestFieldResult, progress) -> None:
         groups.append(ProblemGroup(layout, flow, eta, flat, axis, case.run.scheme,
                                    _planar_coefficients(field_sets, box.axis(axis), axis, plan.axis), kernels))
     scales = {"alpha": flow.speed, "eta": flow.speed / flow.wavenumber}
-    report = (lambda t, worst: progress(f"t = {t:10.4g}   worst error / tolerance = {worst:.3g}")) if progress else None
+    report = (lambda t, worst: progress(CalibrationProgress(f"t = {t:10.4g}   worst error / tolerance = {worst:.3g}",
+                                                            time=t, worst_ratio=worst))) if progress else None
     outcome = integrate(groups, settings, scales, plan.tolerance, report)
     result.tensors.update(outcome.estimates)
     result.errors.update(outcome.errors)
@@ -249,7 +269,7 @@ def _resolution(case, layout, result: TestFieldResult, ratio: float) -> None:
 def calibrate(case, progress=None, direct_run=None) -> TestFieldResult:
     """Run the test-field method for ``case`` (see module docstring).
 
-    ``progress(text)`` receives progress lines; ``direct_run(case) -> (rate, error, b_hat)`` is the
+    ``progress(report)`` receives :class:`CalibrationProgress` reports (``str(report)`` is the line); ``direct_run(case) -> (rate, error, b_hat)`` is the
     growth-rate run of the closure check (the command passes one built on :func:`kindyn.run.run_growth`;
     this module does not import the run layer). Without it the closure check is skipped with a note.
     """
