@@ -62,7 +62,6 @@ from kindyn.diagnostics.resolution import counted_axes, diffusive_caution, diffu
 from kindyn.diagnostics.spectra import resolution_caution, shell_spectrum
 from kindyn.errors import CaseError, KindynError, NumericalError
 from kindyn.initial_fields import flow_field_hat, probe_indices, probe_vector, random_field_hat
-from kindyn.output.checkpoint import state_problem
 from kindyn.stepping import TABLEAUX
 from kindyn.timestep import Timing, choose_timing
 
@@ -163,12 +162,11 @@ def run_growth(case, progress=None, checkpoint=None) -> RunOutcome:
 
     ``progress(t, estimate, tolerance)`` is called now and then; ``checkpoint`` (optional) has
     ``load(case) -> dict | None`` and ``save(case, state)`` and makes a killed run resumable
-    (:class:`kindyn.output.checkpoint.Checkpoint`). A finished run saves its final state as a
-    *finished* checkpoint before returning; a run that loads one rebuilds its outcome from it without
-    stepping (a kill after the result was written but before the checkpoint was removed costs
-    nothing). A saved state that cannot be used is discarded (``checkpoint.discard(reason)``) and the
-    run starts afresh; what the checkpoint said (discarded, not written) is in
-    ``RunOutcome.checkpoint_notes``.
+    (:class:`kindyn.output.checkpoint.Checkpoint`, whose ``load`` verifies what it returns and
+    discards what cannot be used: the run then starts afresh). A finished run saves its final state
+    as a *finished* checkpoint before returning; a run that loads one rebuilds its outcome from it
+    without stepping (a kill after the result was written but before the checkpoint was removed costs
+    nothing). What the checkpoint said (discarded, not written) is in ``RunOutcome.checkpoint_notes``.
     """
     flow, settings = case.flow, case.run
     layout = make_box_layout(case.box, transform_settings(case.numerics), case.numerics)
@@ -180,16 +178,7 @@ def run_growth(case, progress=None, checkpoint=None) -> RunOutcome:
     tolerance, max_time = default_tolerance(case), default_max_time(case)
     if settings.min_time > max_time:
         raise CaseError(case.path, "run.min_time", settings.min_time, f"at most run.max_time = {max_time:g}")
-    saved = checkpoint.load(case) if checkpoint else None
-    own_notes = []  # discards of a checkpoint object that cannot say them itself
-    if saved:
-        problem = _check_saved_state(saved, case.box.spectral_shape)
-        if problem:
-            if hasattr(checkpoint, "discard"):
-                checkpoint.discard(problem)
-            else:
-                own_notes.append(f"checkpoint {getattr(checkpoint, 'path', '')} discarded: {problem}; starting afresh")
-            saved = None
+    saved = checkpoint.load(case) if checkpoint else None  # verified: a usable state or None
     if saved:  # the checkpoint holds the whole field: this process takes its block (any number of processes)
         state = _State(layout.local_part(saved["field_hat"]).astype(layout.complex_dtype), saved["time"],
                        saved["step"], saved["log_amplitude"], Record(**saved["record"]), saved.get("time_error"))
@@ -241,7 +230,7 @@ def run_growth(case, progress=None, checkpoint=None) -> RunOutcome:
                                    "finished": {"stop_reason": integrated_stop_reason, "time_error": time_error,
                                                 "shadow_grid": list(shadow_grid) if shadow_grid else None,
                                                 "shadow_growth_rate": shadow_rate, "grid_error": grid_error}})
-    notes = tuple(getattr(checkpoint, "notes", ())) + tuple(own_notes)
+    notes = tuple(checkpoint.notes) if checkpoint else ()
     field_whole = layout.gather_physical(layout.physical_from_spectral(state.b_hat))  # on the first process
     return RunOutcome(estimate, state.record, state.b_hat, field_whole, shell_spectrum(state.b_hat, layout), ratio,
                       bool(flags), state.step, state.t, timing, stop_reason, wallclock.time() - started, bool(saved),
@@ -514,29 +503,6 @@ def _shadow_run(case, layout, timing: Timing, tolerance: float, duration: float,
 
 
 # --- guards against non-finite values ------------------------------------------------------------
-
-def _check_saved_state(saved: dict, spectral_shape) -> str:
-    """Why a loaded state cannot be resumed ("" when it can): shapes, lengths, non-finite numbers
-    (:func:`kindyn.output.checkpoint.state_problem`; a :class:`~kindyn.output.checkpoint.Checkpoint`
-    checks the same and its checksum when it loads, other checkpoint objects are checked here)."""
-    try:
-        record = saved["record"]
-        series = {name: np.asarray(record.get(name, []), float) for name in
-                  ("times", "log_energy", "log_amplitude", "estimate_times", "estimate_rates", "estimate_errors")}
-        series.update({f"series_{name}": np.asarray(v, float) for name, v in record.get("series", {}).items()})
-        probes = np.asarray(record.get("probes", []), float)
-        field_hat = np.asarray(saved["field_hat"])
-        problem = state_problem(field_hat.shape, spectral_shape, series, probes.shape, float(saved["time"]),
-                                int(saved["step"]), float(saved["log_amplitude"]))
-    except (KeyError, TypeError, ValueError, AttributeError) as exc:
-        return f"malformed ({type(exc).__name__}: {exc})"
-    if problem:
-        return problem
-    bad = int(np.count_nonzero(~np.isfinite(field_hat)))
-    if bad:
-        return f"{bad} of {field_hat.size} field coefficients are not finite"
-    return ""
-
 
 def _check_initial_field(b_hat, layout, case) -> None:
     bad = int(layout.total(np.count_nonzero(~np.isfinite(b_hat))))

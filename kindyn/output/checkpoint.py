@@ -201,7 +201,7 @@ def _state_of(data: dict, case) -> dict:
                               real, imag, series, probes)
     if checksum != attributes["checksum"]:
         raise _Invalid("its data do not match its checksum (the file is damaged)")
-    problem = state_problem(real.shape, case.box.spectral_shape, series, probes.shape, time, step, log_amplitude)
+    problem = _state_problem(real.shape, case.box.spectral_shape, series, probes.shape, time, step, log_amplitude)
     if problem:
         raise _Invalid(problem)
     if not np.all(np.isfinite(real)) or not np.all(np.isfinite(imag)):
@@ -215,7 +215,7 @@ def _state_of(data: dict, case) -> dict:
             "finished": json.loads(finished) if finished else None}
 
 
-def state_problem(field_shape, spectral_shape, series: dict, probes_shape, time, step, log_amplitude) -> str:
+def _state_problem(field_shape, spectral_shape, series: dict, probes_shape, time, step, log_amplitude) -> str:
     """What makes a saved state unusable ("" when nothing): shapes, lengths, non-finite numbers."""
     expected = (3, *spectral_shape)
     if tuple(field_shape) != expected:
