@@ -98,9 +98,14 @@ def _make_folder(folder: Path, key: str) -> None:
 
 def _probe_folder(folder: Path, key: str) -> None:
     try:
-        fd, probe = _create_temporary(folder / ".kindyn-probe")
+        _create_and_remove(folder / ".kindyn-probe")
     except OSError as exc:
         raise CaseError("", key, _shown(folder), f"a folder this process can write into ({_reason(exc)})") from None
+
+
+def _create_and_remove(path: Path) -> None:
+    """Create the longest temporary of ``path`` and remove it again (raises what creating raises)."""
+    fd, probe = _create_temporary(path)
     os.close(fd)
     with contextlib.suppress(OSError):
         os.unlink(probe)
@@ -129,13 +134,10 @@ def _check_name(name: str, folder: Path, file: str, key: str) -> None:
 
 def _probe_name(name: str, folder: Path, file: str, key: str) -> None:
     try:
-        fd, probe = _create_temporary(folder / name)  # the longest name that will be written
+        _create_and_remove(folder / name)  # the longest name that will be written
     except (OSError, ValueError) as exc:
         raise CaseError(file, key, name, f"a file name the file system of {_shown(folder)} accepts "
                         f"({_reason(exc)})") from None
-    os.close(fd)
-    with contextlib.suppress(OSError):
-        os.unlink(probe)
 
 
 def _reason(exc: BaseException) -> str:

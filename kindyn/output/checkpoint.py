@@ -94,11 +94,7 @@ class Checkpoint:
             if self.path.is_dir() and not self.path.is_symlink():
                 raise IsADirectoryError(f"{self.path} is a directory")
             self._write(case, state)
-        except (OSError, RuntimeError, ValueError) as exc:  # netCDF4 reports a full disk as RuntimeError
-            try:
-                self.path.with_name(self.path.name + ".part").unlink(missing_ok=True)
-            except OSError:
-                pass
+        except (OSError, RuntimeError, ValueError) as exc:  # atomic_dataset has removed its temporary
             if not self._failing:
                 self._tell(f"checkpoint {clip(str(self.path))} not written ({_describe(exc)}); the run goes on "
                            "without it (a kill now loses the time since the last checkpoint)")
