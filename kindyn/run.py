@@ -58,8 +58,8 @@ from kindyn.assemble import build_solver, check_stability, make_box_layout, tran
 from kindyn.box import Box, max_kept_mode
 from kindyn.diagnostics.growth import GrowthEstimate, estimate_growth, snapshot_eigenvalue
 from kindyn.diagnostics.measures import MAGNETIC_ENERGY, run_series
-from kindyn.diagnostics.resolution import counted_axes, diffusive_caution, diffusive_resolution, resolution_flags
-from kindyn.diagnostics.spectra import resolution_caution, shell_spectrum
+from kindyn.diagnostics.resolution import counted_axes, diffusive_resolution, resolution_flags
+from kindyn.diagnostics.spectra import shell_spectrum
 from kindyn.errors import CaseError, KindynError, NumericalError
 from kindyn.initial_fields import flow_field_hat, probe_indices, probe_vector, random_field_hat
 from kindyn.stepping import TABLEAUX
@@ -200,12 +200,7 @@ def run_growth(case, progress=None, checkpoint=None) -> RunOutcome:
     estimator = estimate
     ratio = settled_cutoff_ratio(state.record)
     diffusive = diffusive_resolution(flow, layout, case.eta, axes)
-    flags = resolution_flags(ratio, settings.resolution_threshold, diffusive)
-    cautions = []
-    if "spectrum" in flags:
-        cautions.append(resolution_caution(ratio, settings.resolution_threshold))
-    if "diffusive_scale" in flags:
-        cautions.append(diffusive_caution(diffusive))
+    flags, resolution_text = resolution_flags(ratio, settings.resolution_threshold, diffusive)
     shadow_grid, shadow_rate, grid_error = None, math.nan, math.nan
     if finished:
         shadow_grid = tuple(finished["shadow_grid"]) if finished["shadow_grid"] else None
@@ -235,7 +230,7 @@ def run_growth(case, progress=None, checkpoint=None) -> RunOutcome:
     return RunOutcome(estimate, state.record, state.b_hat, field_whole, shell_spectrum(state.b_hat, layout), ratio,
                       bool(flags), state.step, state.t, timing, stop_reason, wallclock.time() - started, bool(saved),
                       _rms_speed(flow, layout), solver.kernels_used, solver.operator.kernels.fallback_reason,
-                      tuple(flags), diffusive.scale, diffusive.ratio, "; ".join(cautions), shadow_grid, shadow_rate,
+                      tuple(flags), diffusive.scale, diffusive.ratio, resolution_text, shadow_grid, shadow_rate,
                       estimator, notes)
 
 

@@ -150,14 +150,21 @@ def diffusive_caution(check: DiffusiveResolution, what: str = "run") -> str:
             f"induction equation's, with a spectrum that looks resolved; repeat on a finer grid{grid}")
 
 
-def resolution_flags(cutoff_ratio: float, threshold: float, check: DiffusiveResolution | None) -> list[str]:
-    """Which criteria trip: ``"spectrum"`` (the field at the cut-off) and/or ``"diffusive_scale"``."""
-    flags = []
+def resolution_flags(cutoff_ratio: float, threshold: float, check: DiffusiveResolution | None,
+                     spectrum: str = "magnetic spectrum", what: str = "run") -> tuple[list[str], str]:
+    """Which criteria trip — ``"spectrum"`` (the ``spectrum`` at the cut-off above ``threshold``)
+    and/or ``"diffusive_scale"`` — and the caution that says so ("" when none trips; ``what`` is the
+    computation named in it: a run, an eigen-solve, the test-field method)."""
+    from kindyn.diagnostics.spectra import resolution_caution
+
+    flags, cautions = [], []
     if cutoff_ratio > threshold:
         flags.append("spectrum")
+        cautions.append(resolution_caution(cutoff_ratio, threshold, spectrum))
     if check is not None and not check.resolved:
         flags.append("diffusive_scale")
-    return flags
+        cautions.append(diffusive_caution(check, what))
+    return flags, "; ".join(cautions)
 
 
 def points_for(scale: float, threshold: float = DIFFUSIVE_RESOLUTION) -> int:

@@ -188,8 +188,7 @@ def _resolution(case, cutoff: float, planar_grid) -> tuple[list, float, str]:
     (:mod:`kindyn.diagnostics.resolution`) on the grid that was solved (the planar grid for planar
     solves; z, along which such a flow is uniform, does not count). ``(flags, k_cut l, caution)``."""
     from kindyn.box import Box
-    from kindyn.diagnostics.resolution import counted_axes, diffusive_caution, diffusive_resolution, resolution_flags
-    from kindyn.diagnostics.spectra import resolution_caution
+    from kindyn.diagnostics.resolution import counted_axes, diffusive_resolution, resolution_flags
     from kindyn.layout import BoxLayout
 
     box = case.box
@@ -198,13 +197,8 @@ def _resolution(case, cutoff: float, planar_grid) -> tuple[list, float, str]:
     layout = BoxLayout(box)
     diffusive = diffusive_resolution(case.flow, layout, case.eta, counted_axes(case.flow, layout))
     threshold = case.run.resolution_threshold
-    flags = resolution_flags(cutoff, threshold, diffusive)
-    cautions = []
-    if "spectrum" in flags:
-        cautions.append(resolution_caution(cutoff, threshold, what="leading eigenfield's spectrum"))
-    if "diffusive_scale" in flags:
-        cautions.append(diffusive_caution(diffusive, "eigen-solve"))
-    return flags, diffusive.ratio, "; ".join(cautions)
+    flags, caution = resolution_flags(cutoff, threshold, diffusive, "leading eigenfield's spectrum", "eigen-solve")
+    return flags, diffusive.ratio, caution
 
 
 def _modes_of(solution: EigenSolution, kz) -> list:

@@ -18,8 +18,8 @@ from __future__ import annotations
 
 import numpy as np
 
-from kindyn.diagnostics.resolution import counted_axes, diffusive_caution, diffusive_resolution, resolution_flags
-from kindyn.diagnostics.spectra import cutoff_ratio, resolution_caution
+from kindyn.diagnostics.resolution import counted_axes, diffusive_resolution, resolution_flags
+from kindyn.diagnostics.spectra import cutoff_ratio
 
 
 def solution_cutoff_ratio(b_hat: np.ndarray, layout, flow=None) -> float:
@@ -38,11 +38,7 @@ def resolution_check(case, layout, ratio: float) -> dict:
     threshold = case.run.resolution_threshold
     diffusive = diffusive_resolution(case.flow, layout, case.eta, counted_axes(case.flow, layout))
     ratio = float(ratio) if ratio is not None and np.isfinite(ratio) else 0.0
-    flags = resolution_flags(ratio, threshold, diffusive)
-    cautions = []
-    if "spectrum" in flags:
-        cautions.append(resolution_caution(ratio, threshold, "spectrum of the test solutions"))
-    if "diffusive_scale" in flags:
-        cautions.append(diffusive_caution(diffusive, "test-field method"))
+    flags, caution = resolution_flags(ratio, threshold, diffusive, "spectrum of the test solutions",
+                                      "test-field method")
     return {"resolution_warning": bool(flags), "resolution_flags": list(flags), "cutoff_ratio": ratio,
-            "resolution_threshold": threshold, **diffusive.as_dict(), "resolution_caution": "; ".join(cautions)}
+            "resolution_threshold": threshold, **diffusive.as_dict(), "resolution_caution": caution}
