@@ -28,15 +28,9 @@ from kindyn.case import load_case
 from kindyn.cli import main
 from kindyn.output.checkpoint import Checkpoint
 from kindyn.run import Record, run_growth
+from tests.small_cases import SEEDED_ABC
 
-CASE = textwrap.dedent("""\
-    [domain]
-    grid = [8, 8, 8]
-    [flow]
-    type = "abc"
-    [magnetic]
-    Rm = 3.0
-    seed = 11
+CASE = SEEDED_ABC + textwrap.dedent("""\
     [run]
     tolerance = 1e-3
     checkpoint_seconds = 1e-9

@@ -45,6 +45,7 @@ from kindyn.layout import BoxLayout
 from kindyn.output.checkpoint import Checkpoint
 from kindyn.run import run_growth, settled_cutoff_ratio, Record
 from kindyn.stepping import TABLEAUX, IntegratingFactorStepper
+from tests.small_cases import RENOVATING_HELICAL
 
 try:  # `python -m pytest` from the repository root puts the root on sys.path
     from tests.reference import roberts_galerkin as rg
@@ -417,26 +418,7 @@ def test_corrupt_checkpoint_is_named_as_such(tmp_path):
 
 # ------------------------------------------------------------------------------- test fields
 
-RENOVATING = """
-[domain]
-grid = [8, 8, 8]
-[flow]
-type = "random-helical"
-spectrum = "shell"
-k_min = 1.0
-k_max = 1.0
-sigma = 1.0
-u_rms = 1.0
-seed = 11
-time_dependence = "renovating"
-tau = 2.0
-renewal = "shift"
-[magnetic]
-eta = 0.5
-[testfield]
-modes = [1]
-samples_per_period = 8
-"""
+RENOVATING = RENOVATING_HELICAL.format(n=8)
 
 
 def renovating_soca_factor(q2: float, eta: float, tau: float) -> float:

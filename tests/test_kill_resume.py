@@ -33,17 +33,11 @@ from kindyn.output.checkpoint import Checkpoint
 from kindyn.run import run_growth
 from test_checkpoint_faults import run_cli
 from test_sweep_resume import alive, children_of, records
+from tests.small_cases import SEEDED_ABC
 
 pytestmark = pytest.mark.skipif(not Path("/proc/self/stat").exists(), reason="needs /proc to find worker processes")
 
-CASE = textwrap.dedent("""\
-    [domain]
-    grid = [8, 8, 8]
-    [flow]
-    type = "abc"
-    [magnetic]
-    Rm = 3.0
-    seed = 11
+CASE = SEEDED_ABC + textwrap.dedent("""\
     [run]
     tolerance = 1e-3
     checkpoint_seconds = 0.02

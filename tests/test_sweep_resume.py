@@ -29,15 +29,9 @@ import pytest
 
 from kindyn.cli import main
 from kindyn.output.netcdf import read_dataset
+from tests.small_cases import SEEDED_ABC
 
-CASE = """\
-[domain]
-grid = [8, 8, 8]
-[flow]
-type = "abc"
-[magnetic]
-Rm = 3.0
-seed = 11
+CASE = SEEDED_ABC + """\
 [run]
 tolerance = 1e-3
 [numerics]

@@ -20,6 +20,7 @@ from kindyn.case import load_case
 from kindyn.cli import main
 from kindyn.errors import CaseError
 from kindyn.output.netcdf import read_dataset
+from tests.small_cases import RENOVATING_HELICAL
 
 ROBERTS = """
 [domain]
@@ -32,27 +33,7 @@ Rm = 12.0
 modes = [1]
 """
 
-RENOVATING = """
-[domain]
-grid = [{n}, {n}, {n}]
-[flow]
-type = "random-helical"
-spectrum = "shell"
-k_min = 1.0
-k_max = 1.0
-sigma = 1.0
-u_rms = 1.0
-seed = 11
-time_dependence = "renovating"
-tau = 2.0
-renewal = "shift"
-[magnetic]
-eta = 0.5
-[testfield]
-modes = [1]
-samples_per_period = 8
-reset_interval = 2.0
-"""
+RENOVATING = RENOVATING_HELICAL + "reset_interval = 2.0\n"
 
 
 def _testfield(capsys, path, out, *extra):
