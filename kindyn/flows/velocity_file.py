@@ -38,6 +38,7 @@ from kindyn.flows.user import COMMON_KEYS, optional_positive, unknown_keys
 FILE_KEYS = ("file", "variables", "ends", "loop_period") + COMMON_KEYS
 SCALE_ATTRIBUTES = ("U", "k_f")
 ENDS = ("hold", "loop")
+DEFAULT_VARIABLES = ("ux", "uy", "uz")  # the velocity components' names when flow.variables is not given
 
 
 def declared_shape(params: dict, case_dir="."):
@@ -46,7 +47,7 @@ def declared_shape(params: dict, case_dir="."):
     before the file is read); None when the file or the variable cannot be found or read (the
     reader then says what is wrong)."""
     spec = params.get("file")
-    names = params.get("variables", ["ux", "uy", "uz"])
+    names = params.get("variables", list(DEFAULT_VARIABLES))
     if not isinstance(spec, str) or not spec or not isinstance(names, (list, tuple)) or not names \
             or not isinstance(names[0], str):
         return None
@@ -183,7 +184,7 @@ class VelocityFileFlow:
         path = (Path(case_dir) / spec).resolve()
         if not path.is_file():
             raise ParameterError("file", spec, f"an existing netCDF file ({path} not found)")
-        names = params.get("variables", ["ux", "uy", "uz"])
+        names = params.get("variables", list(DEFAULT_VARIABLES))
         if not isinstance(names, (list, tuple)) or len(names) != 3 or not all(isinstance(n, str) for n in names):
             raise ParameterError("variables", names, "three variable names, e.g. [\"ux\", \"uy\", \"uz\"]")
         ends = params.get("ends", "hold")
