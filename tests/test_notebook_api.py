@@ -280,3 +280,27 @@ def test_closure_through_the_api_equals_the_command(tmp_path, write_case, capsys
     np.testing.assert_allclose(ds["growth_rate"].values, cli["growth_rate"].values, rtol=1e-6)
     assert ds.attrs["kindyn_command"] == "kindyn.api.closure (Python)"
     assert result.figure(tmp_path / "scales.svg").read_text(encoding="utf-8").lstrip().startswith("<?xml")
+
+
+def test_a_sweep_from_a_dict_gives_the_derived_decay_rates(tmp_path):
+    """Derived (tests/small_cases.py): with B = u for the 1:1:1 ABC flow, u x B = 0 and Lap B = -B,
+    so gamma = -eta = -1/Rm at every Rm, on any grid that holds k = 1. ``parameter_sweep`` on a dict
+    writes the case it ran (atomically, never half-written) and gives those rates; a dict whose
+    ``output.name`` is not a plain file name is a one-line case error naming ``output.name``."""
+    import tomllib
+
+    source = tomllib.loads(QUICK + '[run]\ntolerance = 1e-3\n[output]\nname = "decay"\nfigure = false\n'
+                           '[sweep]\n"magnetic.Rm" = [2.0, 4.0]\n')
+    result = kindyn.parameter_sweep(source, out=tmp_path / "out", workers=1, figure=False)
+    written = tmp_path / "out" / "decay-sweep-case.toml"
+    assert tomllib.loads(written.read_text(encoding="utf-8")) == source
+    assert not list((tmp_path / "out").glob("*.part"))
+    rates = {p["magnetic.Rm"]: p for p in result.points}
+    assert set(rates) == {2.0, 4.0}
+    for rm, point in rates.items():
+        assert point["growth_rate"] == pytest.approx(-1.0 / rm, abs=max(3 * point["growth_rate_error"], 1e-9))
+    bad = {**source, "output": {"name": "../elsewhere", "figure": False}}
+    with pytest.raises(CaseError) as info:
+        kindyn.parameter_sweep(bad, out=tmp_path / "out2", workers=1)
+    assert (info.value.file, info.value.key) == ("<dict>", "output.name")
+    assert not (tmp_path / "elsewhere-sweep-case.toml").exists()

@@ -149,10 +149,11 @@ def test_unwritable_folder_injected(tmp_path, write_case, capsys, monkeypatch):
 @pytest.mark.parametrize("command", sorted(COMMANDS))
 @pytest.mark.parametrize("name, needles", [
     ("a" * 300, ["output.name", "a shorter file name", "allows"]),
-    ("a\\u0000b", ["output.name", "without NUL characters"]),
+    ("a\\u0000b", ["output.name", "without NUL"]),
+    ("a\\u0007b", ["output.name", "without NUL or other control characters"]),
 ])
 def test_names_the_file_system_refuses(command, name, needles, tmp_path, write_case, capsys):
-    """An output name of 300 characters or with a NUL (``output.name``; the case file's stem
+    """An output name of 300 characters, with a NUL or a control character (``output.name``; the case file's stem
     otherwise): one line naming the key, exit 2, before computing, nothing written (common
     practice)."""
     case, extra = case_for(command, write_case)

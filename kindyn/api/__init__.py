@@ -234,6 +234,9 @@ def parameter_sweep(source, overrides=(), out="kindyn-output", workers: int | No
 def _sweep_file(source, out: Path, is_text, toml_text, CaseError) -> str:
     from collections.abc import Mapping
 
+    from kindyn.case.schema import file_stem
+    from kindyn.output.atomic import atomic_stream, check_output
+
     if not (is_text(source) or isinstance(source, Mapping)):
         return str(source)
     if isinstance(source, Mapping):
@@ -246,7 +249,12 @@ def _sweep_file(source, out: Path, is_text, toml_text, CaseError) -> str:
         name = source.get("output", {}).get("name", "case") if isinstance(source.get("output"), Mapping) else "case"
     else:
         text, name = source, "case"
-    out.mkdir(parents=True, exist_ok=True)
-    path = out / f"{name}-sweep-case.toml"
-    path.write_text(text, encoding="utf-8")
+    file = "<dict>" if isinstance(source, Mapping) else "<text>"
+    try:
+        file_stem(name)
+    except ValueError as exc:
+        raise CaseError(file, "output.name", str(name)[:80], str(exc)) from None
+    path = check_output(out, [f"{name}-sweep-case.toml"], file=file) / f"{name}-sweep-case.toml"
+    with atomic_stream(path, "w", encoding="utf-8") as stream:  # never a half-written case file
+        stream.write(text)
     return str(path)

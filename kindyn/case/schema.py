@@ -146,9 +146,12 @@ def string(value) -> str:
 
 
 def file_stem(value) -> str:
-    """A plain file name: not empty, no folder separators, not '.' or '..'."""
+    """A plain file name: not empty, no folder separators, not '.' or '..', no control characters
+    (NUL cannot be in a file name; the others would garble the lines that name the file)."""
     if not isinstance(value, str) or not value.strip() or "/" in value or "\\" in value or value in (".", ".."):
         raise ValueError("a plain file name without folders (letters, digits, '-', '_', '.')")
+    if any(ord(c) < 32 or ord(c) == 127 for c in value):
+        raise ValueError("a plain file name without NUL or other control characters (letters, digits, '-', '_', '.')")
     return value
 
 
