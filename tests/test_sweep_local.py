@@ -134,3 +134,51 @@ def test_failing_points_are_recorded_and_the_sweep_goes_on(write_case, tmp_path,
     again = json.loads((main(["sweep", str(path), "--out", str(out), "--json", "--quiet"]) == 0
                         and capsys.readouterr().out) or "{}")["points"]
     assert [p["reused"] for p in again] == [True, False, True]
+
+
+TESTFIELD_SWEEP = """\
+[domain]
+grid = [8, 8, 8]
+[flow]
+type = "abc"
+[magnetic]
+eta = 50.0
+[testfield]
+modes = [1]
+uniform = true
+[numerics]
+planning = "estimate"
+[output]
+figure = false
+[sweep]
+method = "testfield"
+"magnetic.eta" = [50.0, 100.0]
+"""
+
+
+def test_a_testfield_sweep_calibrates_every_point(write_case, tmp_path, capsys):
+    """``[sweep] method = "testfield"``: every point is a test-field calibration. For the 1:1:1 ABC
+    flow (k = 1) with uniform test fields, SOCA gives alpha_ij = -delta_ij <u.omega>/(3 eta k^2) =
+    -delta_ij/eta (Moffatt 1978, Magnetic Field Generation in Electrically Conducting Fluids, CUP,
+    ch. 7; derived in tests/test_testfield_abc.py): the points' alpha_soca equals it to round-off
+    and their alpha within 1e-3 at Rm = 0.02 and 0.01 (the departure from SOCA is O(Rm^2)). The
+    summary has no growth rates; each point's resolution flag is that of the same calibration run
+    on its own (``kindyn testfield --set magnetic.eta=...``)."""
+    path = write_case(TESTFIELD_SWEEP, "tf.toml")
+    out = tmp_path / "sweep"
+    sweep = run_json(capsys, ["sweep", str(path), "--out", str(out), "--workers", "1", "--json", "--quiet"])
+    assert [p["magnetic.eta"] for p in sweep["points"]] == [50.0, 100.0]
+    for point in sweep["points"]:
+        eta = point["magnetic.eta"]
+        assert point["growth_rate"] is None and point["status"] != "failed", point
+        record = json.loads((out / "points" / f"{point['identity']}.json").read_text())
+        alpha, soca = np.array(record["tensors"]["alpha"]), np.array(record["tensors"]["alpha_soca"])
+        np.testing.assert_allclose(soca, -np.eye(3) / eta, rtol=1e-12, atol=1e-15)
+        np.testing.assert_allclose(alpha, -np.eye(3) / eta, rtol=1e-3, atol=1e-6 / eta)
+        single = run_json(capsys, ["testfield", str(path), "--set", f"magnetic.eta={eta}",
+                                   "--out", str(tmp_path / f"single{eta}"), "--json", "--quiet"])
+        np.testing.assert_allclose(np.array(single["alpha"]), alpha, rtol=1e-12, atol=1e-18)
+        assert record["resolution_warning"] == single["resolution_warning"]
+        assert record["resolution"]["cutoff_ratio"] == single["resolution"]["cutoff_ratio"]
+    summary = read_dataset(sweep["summary"])
+    assert np.all(np.isnan(np.asarray(summary["growth_rate"], float)))

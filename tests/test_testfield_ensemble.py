@@ -102,3 +102,36 @@ def test_ensemble_error_falls_as_one_over_sqrt_N_and_matches_a_long_run(write_ca
     np.testing.assert_array_equal(nc["member_flow_seed"], np.arange(5, 21))
     np.testing.assert_allclose(nc["alpha_K"], nc["member_alpha_K"].mean(axis=0), rtol=1e-12)
     assert "sqrt(max(s^2" in nc["attributes"]["ensemble"]
+
+
+def test_an_ensemble_is_flagged_as_its_members_are(write_case, tmp_path, capsys):
+    """The resolution of an ensemble is that of its realisations (common practice: a mean over
+    members is no better resolved than its worst member). On 12^3 (K = 1, Rm = 1) the test solutions'
+    spectra at the cut-off are about 0.014-0.022 of their peaks; with ``run.resolution_threshold =
+    0.02`` some realisations trip the criterion and some do not. The ensemble of seeds 5, 6, 7 is
+    flagged exactly for the seeds whose own calibration (run here independently, one realisation
+    each) is flagged, its cut-off ratio is their largest, its point records and netCDF file say so,
+    and its cautions hold one resolution caution (not one per member)."""
+    path = write_case(RENOVATING.replace("grid = [8, 8, 8]", "grid = [12, 12, 12]")
+                      .replace("[run]\n", "[run]\nresolution_threshold = 0.02\n"), "rh.toml")
+    own = {seed: calibrate(load_case(str(path), [f"flow.seed={seed}"])).resolution for seed in (5, 6, 7)}
+    flagged = sorted(s for s, res in own.items() if res["resolution_warning"])
+    assert 0 < len(flagged) < 3, own  # the point of the test: a mixed ensemble
+    out = tmp_path / "o"
+    code = main(["testfield", str(path), "--out", str(out), "--set", "testfield.realisations=3",
+                 "--workers", "1", "--json", "--quiet"])
+    captured = capsys.readouterr()
+    assert code == 0, captured.err
+    result = json.loads(captured.out)
+    assert result["resolution_warning"] is True
+    assert result["resolution"]["flagged_seeds"] == flagged
+    assert result["resolution"]["cutoff_ratio"] == max(res["cutoff_ratio"] for res in own.values())
+    under = [c for c in result["cautions"] if c.startswith("possibly under-resolved")]
+    assert len(under) == 1 and f"{len(flagged)} of 3 realisation(s)" in under[0], result["cautions"]
+    records = [json.loads(p.read_text()) for p in out.glob("*/points/*.json")]
+    assert sorted(r["flow_seed"] for r in records) == [5, 6, 7]
+    records = {r["flow_seed"]: r for r in records}
+    assert {s for s, r in records.items() if r["resolution_warning"]} == set(flagged)
+    nc = read_dataset(out / "rh-testfield.nc")
+    assert nc["attributes"]["resolution_warning"] == 1
+    assert json.loads(nc["attributes"]["resolution"])["flagged_seeds"] == flagged

@@ -20,7 +20,8 @@ each beside SOCA, and which components are not determined; findings (negative ed
 diffusivity) are printed as cautions with their errors. With ``testfield.realisations = N > 1`` the
 N realisations (flow seeds s, s+1, ...) run as sweep points (``--workers``, ``--threads-per-run``, or
 ``--scheduler`` for Dask; :mod:`kindyn.sweep.testfield_ensemble`) and the report shows the ensemble
-means with combined standard errors (:mod:`kindyn.testfield.ensemble`). JSON keys beyond those above:
+means with combined standard errors (:mod:`kindyn.testfield.ensemble`), flagged as under-resolved
+when any realisation is (``resolution``: the worst realisation's check, ``flagged_seeds``). JSON keys beyond those above:
 :mod:`kindyn.testfield.summary`.
 
 Progress (stderr, off with ``--quiet``) carries the elapsed time and an ETA (:func:`testfield_progress`):

@@ -42,9 +42,12 @@ def testfield_point(case, output: Path, checkpoint: Path) -> dict:
         attributes["flow_seed"] = seed
     write_testfield_file(output, case, summary, result_variables(result), attributes, result.K,
                          summary["mean_components"])
+    resolution = summary["resolution"]  # both criteria of kindyn.testfield.resolution, JSON-plain
     return {
-        "growth_rate": None, "growth_rate_error": None, "frequency": None, "resolution_warning": False,
-        "cutoff_ratio": None, "converged": bool(result.converged), "stop_reason": result.stop_reason,
+        "growth_rate": None, "growth_rate_error": None, "frequency": None,
+        "resolution_warning": bool(resolution.get("resolution_warning", False)),
+        "cutoff_ratio": resolution.get("cutoff_ratio"), "resolution": resolution,
+        "converged": bool(result.converged), "stop_reason": result.stop_reason,
         "Rm": case.Rm, "flow_seed": seed, "method_detail": result.method,
         "solver_kind": str(result.solver.get("kind", "")),
         "tensors": {k: nested(v) for k, v in result.tensors.items()},
@@ -62,7 +65,8 @@ def member_from_record(record: dict) -> dict:
             "full_set_errors": arrays_from_nested(record["full_set_errors"]),
             "converged": bool(record["converged"]), "stop_reason": record.get("stop_reason", ""),
             "notes": record.get("notes", []), "solver_kind": record.get("solver_kind", ""),
-            "seed": record.get("flow_seed"), "output": record.get("output")}
+            "seed": record.get("flow_seed"), "output": record.get("output"),
+            "resolution": record.get("resolution") or {}}
 
 
 def run_ensemble(path, text: str, overrides, count: int, first_seed: int, out_dir, workers: int | None = None,

@@ -58,6 +58,30 @@ def combine_members(tensors: list, errors: list) -> tuple[dict, dict, dict]:
     return means, ses, stats
 
 
+def ensemble_resolution(members: list, seeds) -> dict:
+    """The resolution of an ensemble: the resolution dict (:func:`kindyn.testfield.resolution.resolution_check`)
+    of its worst realisation (the flagged one with the largest cut-off ratio, else the largest ratio
+    overall), with ``flagged_realisations`` / ``flagged_seeds`` (those whose criteria tripped) and a
+    ``resolution_caution`` that names how many tripped. ``{}`` when no member recorded one."""
+    checked = [(seed, m["resolution"]) for seed, m in zip(seeds, members) if m.get("resolution")]
+    if not checked:
+        return {}
+    flagged = [int(seed) for seed, res in checked if res.get("resolution_warning")]
+
+    def badness(item):
+        res = item[1]
+        return bool(res.get("resolution_warning")), float(res.get("cutoff_ratio") or 0.0)
+
+    worst_seed, worst = max(checked, key=badness)
+    out = {**worst, "worst_seed": int(worst_seed), "flagged_realisations": len(flagged), "flagged_seeds": flagged,
+           "realisations_checked": len(checked)}
+    if flagged:
+        out["resolution_caution"] = (f"{len(flagged)} of {len(checked)} realisation(s) tripped a resolution criterion "
+                                     f"(flow seeds {', '.join(map(str, flagged))}); the worst, flow seed "
+                                     f"{worst_seed}: {worst.get('resolution_caution', '')}")
+    return out
+
+
 def ensemble_result(base, members: list, seeds) -> object:
     """A :class:`~kindyn.testfield.calibration.TestFieldResult` holding the ensemble means and standard
     errors of ``members`` (each a dict with ``tensors``, ``errors``, ``full_set``, ``full_set_errors``
@@ -73,10 +97,15 @@ def ensemble_result(base, members: list, seeds) -> object:
     r = TestFieldResult(base.axis, base.modes, np.asarray(base.K), base.method, base.Rm, base.eta, base.speed,
                         base.k_f, converged, "; ".join(reasons), tensors=means, errors=ses,
                         directions=base.directions, full_set=fs_means, full_set_errors=fs_ses)
-    notes = []
-    for m in members:
-        notes += [n for n in m["notes"] if n not in notes]
+    from kindyn.testfield.calibration import UNDER_RESOLVED
+
     n = len(members)
+    r.resolution = ensemble_resolution(members, seeds)
+    notes = []
+    for m in members:  # a member's resolution caution is in the one ensemble caution below
+        notes += [line for line in m["notes"] if line not in notes and not line.startswith(UNDER_RESOLVED)]
+    if r.resolution.get("resolution_warning"):
+        notes.insert(0, f"{UNDER_RESOLVED}: {r.resolution['resolution_caution']}")
     notes.append(f"ensemble of {n} realisation(s) (flow seeds {seeds[0]} .. {seeds[-1]}): values are ensemble "
                  f"means; errors are combined standard errors ({COMBINATION})")
     unconverged = [s for s, m in zip(seeds, members) if not m["converged"]]
