@@ -104,3 +104,24 @@ def test_local_closure_is_reported_at_a_higher_Rm(write_case, tmp_path, capsys):
     nc = read_dataset(tmp_path / "high" / "high-closure.nc")
     rel = nc["relative_difference"][4, 0]  # local closure
     assert math.isfinite(rel) and abs(rel) > 0.01
+
+
+def test_an_unconverged_calibration_gives_n_a_predictions_not_a_crash(write_case, tmp_path, capsys):
+    """Time-stepped test fields stopped (testfield.max_time = 3) before a single averaging block: the
+    coefficients are not available, so every prediction from them is n/a (NaN in JSON as null), the
+    direct run still stands, and a caution says the calibration did not converge and names
+    testfield.max_time (common practice: a quantity that cannot be computed is reported as not
+    available, never as an internal error). Before, the eigen-solve of the mean-field matrix raised on
+    the NaN tensors."""
+    text = ABC_8PI.format(Rm=0.5, modes=[1]).replace('"8*pi"', '"4*pi"').replace("[8, 8, 32]", "[8, 8, 16]")
+    text = text.replace("tolerance = 1e-6", "tolerance = 1e-2\nmax_time = 20.0") + 'method = "time"\nmax_time = 3.0\n'
+    path = write_case(text, "short.toml")
+    code = main(["closure", str(path), "--out", str(tmp_path / "short"), "--json", "--quiet"])
+    captured = capsys.readouterr()
+    assert code == 0, captured.err
+    result = json.loads(captured.out)
+    for name in ("measured", "measured_matrix", "soca", "soca_matrix", "local"):
+        rates = result["predictions"][name]["growth_rate"]
+        assert all(v is None or math.isnan(v) for v in rates), (name, rates)
+    assert result["direct_growth_rate"][0] is not None and result["direct_growth_rate"][0] < 0
+    assert any("did not converge" in c and "testfield.max_time" in c for c in result["cautions"]), result["cautions"]

@@ -30,19 +30,24 @@ import numpy as np
 from kindyn.testfield.fields import mean_mode_mask
 
 
-def mean_field_growth_rate(alpha: float, eta_t: float, eta: float, K: float) -> float:
-    """``p = |alpha| K - (eta + eta_t) K^2``."""
+def mean_field_growth_rate(alpha: float | None, eta_t: float | None, eta: float, K: float) -> float:
+    """``p = |alpha| K - (eta + eta_t) K^2``; NaN (not available) when ``alpha`` or ``eta_t`` is None."""
+    if alpha is None or eta_t is None:
+        return math.nan
     return abs(alpha) * K - (eta + eta_t) * K ** 2
 
 
 def anisotropic_growth_rate(alpha: np.ndarray, eta_tensor: np.ndarray, eta: float, K: float, axis: int) -> complex:
     """Eigenvalue with the largest real part of the in-plane mean-field problem (module docstring).
 
-    ``alpha`` and ``eta_tensor`` are the ``3 x 2`` planar results (rows x, y, z; columns p, q).
+    ``alpha`` and ``eta_tensor`` are the ``3 x 2`` planar results (rows x, y, z; columns p, q); NaN
+    (not available, e.g. a calibration that did not converge) when an entry used is not finite.
     """
     perp = [j for j in range(3) if j != axis]
-    A = np.asarray(alpha)[perp, :]
-    H = np.asarray(eta_tensor)[perp, :]
+    A = np.asarray(alpha, float)[perp, :]
+    H = np.asarray(eta_tensor, float)[perp, :]
+    if not (np.all(np.isfinite(A)) and np.all(np.isfinite(H))):
+        return complex(math.nan, math.nan)
     e_s = np.eye(3)[axis]
     J = np.array([[np.cross(e_s, np.eye(3)[perp[c]])[perp[r]] for c in range(2)] for r in range(2)])
     M = 1j * K * J @ (A - 1j * K * H @ J) - eta * K ** 2 * np.eye(2)

@@ -178,6 +178,10 @@ def compare_scales(case, calibrate, direct_run=None, progress=None) -> ScaleComp
     eta = case.eta
     periods = flow_periods(case, s)
     out = ScaleComparison(K, plan.modes, s, eta, case.flow.wavenumber, periods, calibration=result)
+    if not result.converged:
+        out.notes.append(f"the test-field calibration did not converge ({result.stop_reason}): the predictions "
+                         "from its coefficients carry their errors, and are n/a where it gave no value "
+                         "(raise testfield.max_time)")
     nK = len(K)
     a, h = result.horizontal()
     ea, eh = result.horizontal_errors()
