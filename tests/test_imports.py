@@ -50,18 +50,19 @@ DEVELOPERS = PACKAGE.parent / "DEVELOPERS.md"
 LAYERS = (
     (1, "kindyn.errors", "error types; nothing of kindyn"),
     (1, "kindyn._version", "the version string; nothing of kindyn"),
+    (1, "kindyn.limits", "the range every number of a case lies in; nothing of kindyn"),
     (2, "kindyn.box", "numpy only"),
     (2, "kindyn.calculus", "spectral calculus on arrays of wavenumbers; numpy only"),
     (3, "kindyn.stepping", "numpy only; of kindyn only stepping and errors (knows nothing about magnetism)"),
     (3, "kindyn.array_kernels", "numpy; numba only in array_kernels/numba_kernels.py"),
-    (4, "kindyn.flows", "numpy, scipy; of kindyn only errors, box and calculus; netCDF4 only in flows/velocity_file.py, lazily"),
+    (4, "kindyn.flows", "numpy, scipy; of kindyn only errors, limits, box and calculus; netCDF4 only in flows/velocity_file.py, lazily"),
     (5, "kindyn.transforms", "pyfftw only in transforms/fftw.py; mpi4py, mpi4py_fft only in transforms/distributed*.py"),
     (6, "kindyn.layout", "of kindyn only box, transforms, stepping, array_kernels, errors"),
     (7, "kindyn.induction", "the induction operator"),
     (7, "kindyn.initial_fields", "initial fields"),
     (7, "kindyn.timestep", "time step and sampling"),
     (7, "kindyn.diagnostics", "what is measured; never run, eigen, testfield, sweep, output, commands, case"),
-    (8, "kindyn.case", "of kindyn only errors, box, flows, and registry constants of stepping, transforms, array_kernels"),
+    (8, "kindyn.case", "of kindyn only errors, limits, box, flows, and registry constants of stepping, transforms, array_kernels"),
     (9, "kindyn.output", "plain data in; never run, eigen, testfield, sweep, assemble, induction, layout, stepping"),
     (10, "kindyn.assemble", "builds engine, layout, operator, stepper from configuration slices"),
     (11, "kindyn.run", "driver: one growth run; not eigen or testfield"),
@@ -80,9 +81,9 @@ DRIVERS = ("kindyn.run", "kindyn.eigen", "kindyn.testfield")
 # part -> the only other parts of kindyn it may import (stricter than its level)
 ONLY = {
     "kindyn.stepping": {"kindyn.errors"},
-    "kindyn.flows": {"kindyn.errors", "kindyn.box", "kindyn.calculus"},
+    "kindyn.flows": {"kindyn.errors", "kindyn.limits", "kindyn.box", "kindyn.calculus"},
     "kindyn.layout": {"kindyn.errors", "kindyn.box", "kindyn.stepping", "kindyn.array_kernels", "kindyn.transforms"},
-    "kindyn.case": {"kindyn.errors", "kindyn.box", "kindyn.flows",
+    "kindyn.case": {"kindyn.errors", "kindyn.limits", "kindyn.box", "kindyn.flows",
                     "kindyn.stepping", "kindyn.transforms", "kindyn.array_kernels"},
 }
 # part -> parts it must never import (stated even where the level already forbids it)

@@ -23,6 +23,7 @@ from typing import Any, Callable, TypeVar
 
 from kindyn.array_kernels import KERNEL_SETS, numba_unavailable_reason
 from kindyn.errors import MISSING, CaseError
+from kindyn.limits import MAGNITUDE, MAX_INTEGER, MAX_MAGNITUDE, MIN_MAGNITUDE  # kindyn/limits.py: why
 from kindyn.stepping import TABLEAUX
 from kindyn.transforms import ENGINES, PLANNING_EFFORTS, PRECISIONS
 
@@ -31,15 +32,6 @@ REQUIRED = object()
 _PI_PATTERN = re.compile(r"^\s*(?:(?P<num>[0-9.eE+-]+)\s*\*?\s*)?pi\s*(?:/\s*(?P<den>[0-9.eE+-]+))?\s*$")
 
 
-# Every number of a case lies in this range (or is 0): far beyond any physical or numerical
-# setting, and far enough inside the floating-point range that squares, products with grid sizes
-# and exponentials of ratios stay finite (1e-300 lengths give |k|^2 = inf; 1e308 wavenumbers
-# overflow mode numbers).
-MAX_MAGNITUDE = 1e100
-MIN_MAGNITUDE = 1e-100
-MAGNITUDE = "between 1e-100 and 1e100"
-# Every whole number fits a signed 64-bit integer (numpy, netCDF attributes, seeds).
-MAX_INTEGER = 2**63 - 1
 MAX_THREADS = 4096  # numerics.threads, whatever the machine (the loader also checks the cores here)
 
 
@@ -85,6 +77,16 @@ def positive(value) -> float:
     if v <= 0:
         raise ValueError(f"a positive number {MAGNITUDE}")
     return v
+
+
+def fraction_below(limit: float, what: str) -> Callable:
+    """A positive number below ``limit`` (< 1): tolerances and thresholds that are fractions."""
+    def convert(value) -> float:
+        v = _number(value, f"{what}: a positive number below {limit:g}")
+        if not 0 < v < limit:
+            raise ValueError(f"{what}: a positive number below {limit:g}")
+        return v
+    return convert
 
 
 def non_negative(value) -> float:
@@ -307,7 +309,8 @@ class RunConfig(SectionConfig):
     max_steps: int = setting(positive_integer, 10_000_000, "stop after this many steps even if not converged")
     checkpoint_seconds: float = setting(positive, 120.0, "wall-clock seconds between checkpoints")
     resolution_threshold: float = setting(
-        positive, 0.03, "warn when the spectrum at the dealiasing cut-off exceeds this fraction of its peak")
+        fraction_below(1.0, "a fraction of the spectrum's peak"), 0.03,
+        "warn when the spectrum at the dealiasing cut-off exceeds this fraction of its peak")
 
 
 def _process_grid(value) -> tuple[int, int]:

@@ -33,6 +33,7 @@ import math
 import numpy as np
 
 from kindyn.errors import ParameterError
+from kindyn.limits import MAGNITUDE, in_range
 
 
 def whole_mode_number(k: float, length: float, key: str, axis: str) -> int:
@@ -55,14 +56,16 @@ def require_kept(box, modes: tuple[int, int, int], flow_name: str) -> None:
 
 
 def positive(key: str, value: float) -> float:
-    if not (isinstance(value, (int, float)) and math.isfinite(value) and value > 0):
-        raise ParameterError(key, value, "a positive finite number")
+    """``value`` as a float: a positive number in the case range (:mod:`kindyn.limits`)."""
+    if isinstance(value, bool) or not (isinstance(value, (int, float)) and value > 0 and in_range(float(value))):
+        raise ParameterError(key, value, f"a positive number {MAGNITUDE}")
     return float(value)
 
 
 def finite(key: str, value: float) -> float:
-    if not (isinstance(value, (int, float)) and math.isfinite(value)):
-        raise ParameterError(key, value, "a finite number")
+    """``value`` as a float: 0 or a number in the case range (:mod:`kindyn.limits`)."""
+    if isinstance(value, bool) or not (isinstance(value, (int, float)) and in_range(float(value))):
+        raise ParameterError(key, value, f"a number of magnitude {MAGNITUDE} (or 0)")
     return float(value)
 
 

@@ -28,6 +28,7 @@ from kindyn.calculus import solenoidal_part_hat
 from kindyn.errors import MISSING, ParameterError
 from kindyn.flows.aliasing import highest_mode
 from kindyn.flows.gridded import band_mask, hat_from_grid
+from kindyn.limits import MAX_MAGNITUDE
 
 DIVERGENCE_TOLERANCE = 1e-6
 BAND_TOLERANCE = 1e-6
@@ -86,6 +87,8 @@ def grid_values(components, box, key: str, value, t: float) -> np.ndarray:
 
 
 def check_finite(u: np.ndarray, box, key: str, value, t: float) -> None:
+    """Every value finite, and the largest ``|u_i|`` at most :data:`kindyn.limits.MAX_MAGNITUDE`
+    (beyond it the flow's energy and the products with the field overflow)."""
     bad = ~np.isfinite(u)
     if bad.any():
         component, i, j, k = np.argwhere(bad)[0]
@@ -93,6 +96,10 @@ def check_finite(u: np.ndarray, box, key: str, value, t: float) -> None:
         raise ParameterError(key, value, f"finite velocities: {int(bad.sum())} of {u.size} values are NaN or "
                              f"infinite at t = {t:g} (first: u_{'xyz'[component]} at x = {x:.4g}, "
                              f"y = {y:.4g}, z = {z:.4g})")
+    largest = float(np.max(np.abs(u))) if u.size else 0.0
+    if largest > MAX_MAGNITUDE:
+        raise ParameterError(key, value, f"velocities of magnitude at most {MAX_MAGNITUDE:g} (the largest "
+                             f"|u_i| at t = {t:g} is {largest:.3g}: its energy and products overflow)")
 
 
 def check_periodic(velocity, box, key: str, value, t: float, scale: float) -> None:
@@ -239,9 +246,12 @@ def period_option(params: dict) -> tuple[float | None, bool]:
 
 
 def check_period(grid_at, period: float, scale: float) -> None:
-    """Refuse a declared period the flow does not have: ``u(t0 + P)`` against ``u(t0)``, ``t0 = 0.37 P``."""
+    """Refuse a declared period the flow does not have: ``u(t0 + P)`` against ``u(t0)``, ``t0 = 0.37 P``,
+    relative to the largest ``|u_i|`` at ``t0`` and ``t0 + P`` or ``scale`` (a flow may vanish at t = 0)."""
     t0 = 0.37 * period
-    gap = float(np.max(np.abs(grid_at(t0 + period) - grid_at(t0))))
+    later, now = grid_at(t0 + period), grid_at(t0)
+    gap = float(np.max(np.abs(later - now)))
+    scale = max(scale, float(np.max(np.abs(now))), float(np.max(np.abs(later))))
     if not gap <= PERIOD_TOLERANCE * max(scale, 1e-300):
         raise ParameterError("period", period, f"the flow's period: u(t + P) differs from u(t) by up to {gap:.3g} "
                              f"({gap / scale if scale else float('inf'):.3g} of max|u|; tolerance "

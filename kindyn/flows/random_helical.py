@@ -53,8 +53,9 @@ from dataclasses import dataclass, field
 
 import numpy as np
 
-from kindyn.errors import ParameterError
+from kindyn.errors import MISSING, ParameterError
 from kindyn.flows.base import finite, positive
+from kindyn.limits import MAX_INTEGER
 
 SPECTRA = ("shell", "power-law", "table")
 TIME_MODELS = ("steady", "renovating", "ornstein-uhlenbeck")
@@ -63,6 +64,7 @@ OU_STEPS_PER_TAU = 64
 OU_BLOCK = 256
 MAX_MODES = 200_000
 _STREAM_DRAW, _STREAM_SHIFT, _STREAM_OU = 1, 2, 3
+MAX_SLOPE = 50.0  # E(k) ~ k**slope: beyond this the shell energies over- or underflow
 _KEYS = ("spectrum", "k_min", "k_max", "slope", "table_k", "table_E", "sigma", "u_rms", "seed",
          "time_dependence", "tau", "renewal")
 
@@ -162,18 +164,23 @@ class RandomHelicalFlow:
             if self.k_max < self.k_min:
                 raise ParameterError("k_max", self.k_max, f"a number >= k_min = {self.k_min:g}")
             finite("slope", self.slope)
+            if abs(self.slope) > MAX_SLOPE:  # k**slope must stay finite for every |k| of a grid
+                raise ParameterError("slope", self.slope, f"a spectral slope between -{MAX_SLOPE:g} and {MAX_SLOPE:g}")
         finite("sigma", self.sigma)
         if not -1.0 <= self.sigma <= 1.0:
             raise ParameterError("sigma", self.sigma, "a relative helicity in [-1, 1]")
         positive("u_rms", self.u_rms)
-        if isinstance(self.seed, bool) or not isinstance(self.seed, int) or self.seed < 0:
-            raise ParameterError("seed", self.seed, "a whole number >= 0")
+        if isinstance(self.seed, bool) or not isinstance(self.seed, int) or not 0 <= self.seed <= MAX_INTEGER:
+            raise ParameterError("seed", self.seed, "a whole number from 0 to 2**63 - 1")
         if self.time_dependence not in TIME_MODELS:
             raise ParameterError("time_dependence", self.time_dependence, "one of " + ", ".join(f'"{s}"' for s in TIME_MODELS))
         if self.time_dependence == "steady":
             if self.tau is not None:
                 raise ParameterError("tau", self.tau, "no tau for a steady flow (time_dependence = \"steady\")")
         else:
+            if self.tau is None:
+                raise ParameterError("tau", MISSING, f"a correlation or renewal time tau > 0 for time_dependence = "
+                                     f"\"{self.time_dependence}\"")
             positive("tau", self.tau)
         if self.renewal not in RENEWALS:
             raise ParameterError("renewal", self.renewal, "one of " + ", ".join(f'"{s}"' for s in RENEWALS))

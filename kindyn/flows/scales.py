@@ -34,6 +34,7 @@ import numpy as np
 
 from kindyn.errors import MISSING, ParameterError
 
+SPEED_SCALE_SPREAD = 1e6  # a declared U and the samples' u_rms may differ by conventions (factors of order 1), not by this
 DECLARED_BY_CASE = "declared in the case (flow.U, flow.k_f)"
 DECLARED_BY_FILE = "declared in the velocity file (global attributes U, k_f)"
 MEASURED = ("measured (U = sqrt(<|u - <u>|^2>/3), the rms of one component; k_f = energy-weighted mean |k|; "
@@ -55,8 +56,12 @@ def measured_scales(u_hat: np.ndarray, box) -> tuple[float, float]:
 
 
 def rms_speed(u_hat: np.ndarray, box) -> float:
-    """``u_rms = sqrt(<|u|^2>)`` (3-D, the mean included) of half-grid coefficients."""
-    return math.sqrt(float(np.sum(box.parseval_weights * sum(np.abs(c) ** 2 for c in u_hat))))
+    """``u_rms = sqrt(<|u|^2>)`` (3-D, the mean included) of half-grid coefficients (scaled by the
+    largest coefficient first, so that tiny and huge flows neither under- nor overflow)."""
+    top = float(np.max(np.abs(u_hat))) if np.size(u_hat) else 0.0
+    if not top > 0 or not math.isfinite(top):
+        return top if math.isfinite(top) else math.inf
+    return top * math.sqrt(float(np.sum(box.parseval_weights * sum(np.abs(c / top) ** 2 for c in u_hat))))
 
 
 def _declared(value, key: str, where: str):
@@ -67,13 +72,19 @@ def _declared(value, key: str, where: str):
     return float(value)
 
 
-def resolve_scales(params: dict, u_hat, box, file_scales=(None, None)):
+def resolve_scales(params: dict, u_hat, box, file_scales=(None, None), steady: bool = True):
     """``(U, k_f, rule, measured_keys)``: the case's keys, else the file's attributes, else measured.
 
     ``measured_keys`` lists the keys (``"U"``, ``"k_f"``) that were measured; the case loader
-    refuses them when ``magnetic.Rm`` is given (:func:`require_declared`).
+    refuses them when ``magnetic.Rm`` is given (:func:`require_declared`). A steady flow must not
+    be zero, and a declared ``U`` must be within a factor :data:`SPEED_SCALE_SPREAD` of the samples'
+    ``u_rms`` (a time-dependent flow may pass through zero at t = 0: not checked).
     """
     measured = measured_scales(u_hat, box)
+    u_rms = rms_speed(u_hat, box)
+    if steady and not u_rms > 0:
+        raise ParameterError("U", params.get("U", MISSING), "a flow that is not zero everywhere (its samples "
+                             "at t = 0 are all 0: pure diffusion, and Rm = U/(eta k_f) has no meaning)")
     values, sources, missing = [], [], []
     for i, key in enumerate(("U", "k_f")):
         value = _declared(params.get(key), key, "the flow's scale in Rm = U/(eta k_f)")
@@ -89,6 +100,12 @@ def resolve_scales(params: dict, u_hat, box, file_scales=(None, None)):
                                      "a flow with no fluctuating part cannot drive a dynamo)")
         values.append(value)
         sources.append(source)
+    ratio = values[0] / u_rms if u_rms > 0 else math.inf
+    if steady and not 1.0 / SPEED_SCALE_SPREAD <= ratio <= SPEED_SCALE_SPREAD:
+        key = "U" if sources[0] == "case" else "file"
+        raise ParameterError(key, values[0], f"the flow's speed scale: its samples at t = 0 have u_rms = {u_rms:.3g}, "
+                             f"{ratio:.3g} times apart from U (at most {SPEED_SCALE_SPREAD:g}; Rm = U/(eta k_f) "
+                             "and the time step would describe another flow)")
     return values[0], values[1], _rule_text(sources), tuple(missing)
 
 

@@ -238,7 +238,7 @@ class FormulaFlow:
         _, u_hat = sampler.check(check_times(steady, period), divergence, tolerance, mean_flow,
                                  params.get("mean_flow"), period)
         checks.require_time_declaration(steady, period, aperiodic, "its formulas use t", None)
-        U, k_f, rule, measured = resolve_scales(params, u_hat, box)
+        U, k_f, rule, measured = resolve_scales(params, u_hat, box, steady=steady)
         return cls(params["ux"], params["uy"], params["uz"], values, U, k_f, steady, "z" not in used,
                    period, divergence, sampler, rule, measured, rms_speed(u_hat, box))
 
@@ -301,7 +301,7 @@ class CallableFlow:
         elif period is None and not aperiodic:
             checks.require_time_declaration(False, None, False, "a callable with steady = false, the default",
                                             largest_change(sampler))
-        U, k_f, rule, measured = resolve_scales(params, u_hat, box)
+        U, k_f, rule, measured = resolve_scales(params, u_hat, box, steady=steady)
         return cls(spec, values, U, k_f, steady, period, divergence, sampler, rule, measured,
                    rms_speed(u_hat, box))
 

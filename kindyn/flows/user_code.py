@@ -61,6 +61,8 @@ def load_function(spec, case_dir):
                     raise ParameterError("function", spec, f"an existing Python file ({path} not found)")
                 module_spec = importlib.util.spec_from_file_location(f"kindyn_user_flow_{abs(hash(str(path)))}",
                                                                      path)
+                if module_spec is None or module_spec.loader is None:  # e.g. a file without the .py suffix
+                    raise ParameterError("function", spec, f"a Python source file ending in .py ({path} is not one)")
                 module = importlib.util.module_from_spec(module_spec)
                 module_spec.loader.exec_module(module)
             else:

@@ -183,7 +183,8 @@ class VelocityFileFlow:
             raise ParameterError("file", spec if spec is not None else "<missing>", "a path to a netCDF file")
         path = (Path(case_dir) / spec).resolve()
         if not path.is_file():
-            raise ParameterError("file", spec, f"an existing netCDF file ({path} not found)")
+            why = "is a folder" if path.is_dir() else ("is not a regular file" if path.exists() else "not found")
+            raise ParameterError("file", spec, f"an existing netCDF file ({path} {why})")
         names = params.get("variables", list(DEFAULT_VARIABLES))
         if not isinstance(names, (list, tuple)) or len(names) != 3 or not all(isinstance(n, str) for n in names):
             raise ParameterError("variables", names, "three variable names, e.g. [\"ux\", \"uy\", \"uz\"]")
@@ -209,8 +210,8 @@ class VelocityFileFlow:
         period = None
         if times is not None and len(times) > 1 and ends == "loop":
             period = _loop_period(times, params, spec)
-        U, k_f, rule, measured = resolve_scales(params, coefficients[0], box, file_scales)
         steady = coefficients.shape[0] == 1
+        U, k_f, rule, measured = resolve_scales(params, coefficients[0], box, file_scales, steady=steady)
         return cls(spec, tuple(names), ends, U, k_f, steady, period,
                    None if steady else times - times[0], coefficients, box, source_grid,
                    scale_rule=rule, measured_scales=measured, u_rms=rms_speed(coefficients[0], box))
