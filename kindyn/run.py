@@ -157,6 +157,37 @@ class _State:
     time_error: float | None = None  # the time-step error once measured (checkpointed: a resume keeps it)
 
 
+def check_sampling(case, timing, max_time: float) -> None:
+    """Refuse a sampling the run cannot keep (one-line case errors naming the key that set it): a
+    sample interval beyond ``max_time`` (the run stops only at samples, so it would overshoot), or
+    a step so small that ``run.max_steps`` steps cover less than one turnover time ``1/(U k_f)`` or
+    do not reach the first sample (nothing meaningful would be measured)."""
+    settings, flow = case.run, case.flow
+    if timing.sample_interval > max_time * (1 + 1e-12):
+        key, value = (("run.sample_interval", settings.sample_interval) if settings.sample_interval
+                      else ("run.max_time", max_time))
+        raise CaseError(case.path, key, value, f"a sample interval ({timing.sample_interval:.6g}) not above "
+                        f"run.max_time = {max_time:g}: the run stops only at samples")
+    tau = getattr(flow, "tau", None)
+    if settings.time_step:
+        key, value = "run.time_step", settings.time_step
+    elif tau and not flow.steady:
+        key, value = "flow.tau", tau
+    else:
+        key, value = "run.cfl", settings.cfl
+    turnover = 1.0 / (flow.speed * flow.wavenumber)
+    if settings.max_steps * timing.dt < turnover:
+        raise CaseError(case.path, key, value, f"steps that cover one turnover time 1/(U k_f) = {turnover:.3g} "
+                        f"within run.max_steps = {settings.max_steps} (dt = {timing.dt:.3g} covers "
+                        f"{settings.max_steps * timing.dt:.3g})")
+    if timing.steps_per_sample > settings.max_steps:
+        if settings.sample_interval and not settings.time_step:
+            key, value = "run.sample_interval", settings.sample_interval
+        raise CaseError(case.path, key, value, f"at most run.max_steps = {settings.max_steps} steps to the first "
+                        f"sample (this needs {timing.steps_per_sample}, dt = {timing.dt:.3g}): nothing would be "
+                        "measured")
+
+
 def run_growth(case, progress=None, checkpoint=None) -> RunOutcome:
     """Integrate until the growth rate converges (or a guard stops the run), then check it.
 
@@ -178,6 +209,7 @@ def run_growth(case, progress=None, checkpoint=None) -> RunOutcome:
     tolerance, max_time = default_tolerance(case), default_max_time(case)
     if settings.min_time > max_time:
         raise CaseError(case.path, "run.min_time", settings.min_time, f"at most run.max_time = {max_time:g}")
+    check_sampling(case, timing, max_time)
     saved = checkpoint.load(case) if checkpoint else None  # verified: a usable state or None
     if saved:  # the checkpoint holds the whole field: this process takes its block (any number of processes)
         state = _State(layout.local_part(saved["field_hat"]).astype(layout.complex_dtype), saved["time"],

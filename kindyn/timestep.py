@@ -12,7 +12,9 @@ imaginary axis: its limit depends on the step diffusion number ``delta = eta/(dt
 
 For a time-periodic flow (period ``T``) or a renovating flow (renewal time
 ``tau``) the step is shrunk so that a whole number of steps fits in ``T`` (or ``tau``), and the
-energy is sampled at fractions of it, so that growth is measured over whole periods.
+energy is sampled at fractions of it, so that growth is measured over whole periods. An automatic
+step never exceeds the sample interval, nor ``tau_c/8`` for a flow that changes continuously with a
+correlation time ``tau_c`` (Ornstein–Uhlenbeck amplitudes).
 """
 
 from __future__ import annotations
@@ -24,6 +26,7 @@ import numpy as np
 
 
 SAMPLES_PER_PERIOD = 8
+STEPS_PER_CORRELATION_TIME = 8  # automatic steps of a flow with a correlation time but no period
 
 
 @dataclass(frozen=True)
@@ -105,5 +108,10 @@ def choose_timing(flow, layout, cfl: float, time_step: float | None, sample_inte
     if not math.isfinite(dt):
         dt = 0.1 * turnover
     interval = sample_interval if sample_interval else 0.25 * turnover
+    if not time_step:  # a step never spans more than one sample (a slow flow's CFL step can be huge)
+        dt = min(dt, interval)
+        correlation = getattr(flow, "correlation_time", None)
+        if correlation and not flow.steady:  # a continuously changing flow (Ornstein-Uhlenbeck) is resolved in time
+            dt = min(dt, correlation / STEPS_PER_CORRELATION_TIME)
     return Timing(dt, max(1, round(interval / dt)), 1, dt * rate,
                   diffusion_number(eta, dt, speed) if eta is not None else None)

@@ -54,10 +54,12 @@ def test_stable_steps_at_the_limit_are_accepted(case, tmp_path, capsys):
 
 
 def test_max_steps_is_honoured_inside_a_sample_interval(case, tmp_path, capsys):
+    # 50 steps per sample; 125 steps cover 1.25 turnover times and end half-way through the third
+    # sample interval (steps that cannot cover one turnover time are refused: test_degenerate_settings.py)
     code = main(["run", str(case), "--out", str(tmp_path / "o"), "--quiet", "--json",
-                 "--set", "run.cfl=0.001", "--set", "run.max_steps=3"])
+                 "--set", "run.time_step=0.01", "--set", "run.sample_interval=0.5", "--set", "run.max_steps=125"])
     result = json.loads(capsys.readouterr().out)
-    assert code == 0 and result["steps"] == 3 and result["converged"] is False
+    assert code == 0 and result["steps"] == 125 and result["converged"] is False
     assert "max_steps" in result["stop_reason"]
 
 

@@ -79,11 +79,15 @@ def parse_override(text: str, file: str = "--set") -> tuple[list[str], object]:
         raise CaseError(file, key.strip(), raw, "a dotted key section.key (quote keys that contain dots: "
                                                'sweep."magnetic.Rm")')
     try:
-        value = tomllib.loads(f"v = {raw.strip()}")["v"]
+        document = tomllib.loads(f"v = {raw.strip()}")
     except tomllib.TOMLDecodeError:
         value = raw.strip()
     except (ValueError, RecursionError, MemoryError) as exc:  # e.g. an integer of 100000 digits
         raise CaseError(file, key.strip(), raw.strip(), f"a TOML value ({_parse_problem(exc)})") from None
+    else:
+        if set(document) != {"v"}:  # more than a value: further lines with keys or tables
+            raise CaseError(file, key.strip(), raw.strip(), "a single TOML value (no further lines, keys or tables)")
+        value = document["v"]
     check_depth(value, file, key.strip())
     return parts, value
 
@@ -204,7 +208,7 @@ def naming_overrides(file: str, overrides):
         yield
     except CaseError as exc:
         overridden = {".".join(parse_override(o)[0]) for o in overrides}
-        if exc.key in overridden:
+        if exc.key in overridden or (exc.value == "[section]" and any(k.startswith(f"{exc.key}.") for k in overridden)):
             raise CaseError(f"--set (over {file})", exc.key, exc.value, exc.expected) from None
         raise
 

@@ -59,7 +59,7 @@ class ModesConfig(SectionConfig):
         "T of the propagator exp(L T) for steady flows (default 1/(U k_f), rounded to an "
         "even number of steps); periodic flows always use their period")
     tolerance: float = setting(
-        schema.positive, 1e-10,
+        schema.fraction_below(1e-2, "a relative residual"), 1e-10,
         "ARPACK tolerance: ||A v - mu v|| <= tolerance |mu| (eigenvalue error about tolerance/T)")
     solver: str = setting(
         schema.choice("arnoldi", "arpack"), "arnoldi",

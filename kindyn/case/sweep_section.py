@@ -127,6 +127,9 @@ def validate_sweep(raw, file: str, methods: tuple[str, ...] | None = None) -> Sw
                             "of values, or an option: " + ", ".join(OPTION_DEFAULTS))
     if not keys:
         raise CaseError(file, "sweep", "{}", 'at least one swept key, e.g. "magnetic.Rm" = [5, 10, 20]')
+    if "magnetic.eta" in keys and "magnetic.Rm" in keys:  # a case gives one of them (Rm = U/(eta k_f))
+        raise CaseError(file, 'sweep."magnetic.eta"', raw["magnetic.eta"],
+                        'no list beside "magnetic.Rm": a point gives eta or Rm, not both (sweep one of them)')
     _check_option(options, "combine", schema.choice(*COMBINATIONS), file)
     _check_option(options, "method", schema.string if methods is None else schema.choice(*methods), file)
     _check_option(options, "refine", schema.boolean, file)

@@ -12,8 +12,8 @@ import dataclasses
 
 from dataclasses import dataclass
 
-from kindyn.case.schema import (SectionConfig, boolean, bounded_integer, choice, list_of, non_negative, positive,
-                                positive_integer, setting)
+from kindyn.case.schema import (SectionConfig, boolean, bounded_integer, choice, fraction_below, list_of, non_negative,
+                                positive, positive_integer, setting)
 
 AXES = ("x", "y", "z")
 
@@ -59,7 +59,8 @@ class TestfieldConfig(SectionConfig):
         positive, None, "stop the time stepping here even if not converged (default: settle + 200 blocks)")
     samples_per_period: int = setting(bounded_integer(1, 100_000), 32,
                                       "EMF samples per flow period (or per block) for time averages")
-    solver_tolerance: float = setting(positive, 1e-11, "relative residual of the iterative steady solve (GMRES)")
+    solver_tolerance: float = setting(fraction_below(1e-2, "a relative residual"), 1e-11,
+                                      "relative residual of the iterative steady solve (GMRES)")
     onset_check: bool = setting(
         boolean, True, "before direct steady solves, check that no test problem has a growing homogeneous mode")
     closure: bool = setting(

@@ -93,7 +93,8 @@ def result_lines(summary: dict, outcome) -> list[str]:
 def run_cautions(summary: dict, outcome, resolution: str) -> list[str]:
     cautions = [resolution] if resolution else []
     if not summary["estimate_available"]:
-        cautions.append(f"{NO_ESTIMATE}: {outcome.stop_reason}; run longer (run.max_time) for a growth rate "
+        longer = "run.max_steps" if "max_steps" in outcome.stop_reason else "run.max_time"
+        cautions.append(f"{NO_ESTIMATE}: {outcome.stop_reason}; run longer ({longer}) for a growth rate "
                         "with an error bar")
     elif not summary["converged"]:
         cautions.append(f"not converged ({outcome.stop_reason}): the growth rate carries its reported error, "

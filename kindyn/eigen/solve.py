@@ -107,7 +107,13 @@ def choose_method(case, z_independent: bool) -> str:
         raise CaseError(case.path, "modes.method", method,
                         "\"box\" or \"auto\": the planar reduction needs a flow that does not depend on z")
     if method == "auto":
-        return "planar" if z_independent else "box"
+        method = "planar" if z_independent else "box"
+    if method == "box":  # keys of the planar reduction would be silently unused
+        for key in ("kz", "planar_grid"):
+            if getattr(case.modes, key) is not None:
+                raise CaseError(case.path, f"modes.{key}", list(getattr(case.modes, key)),
+                                "no planar setting for a 3-D (box) solve: the flow depends on z or modes.method = "
+                                "\"box\" (remove it, or solve a z-independent flow with method \"planar\")")
     return method
 
 

@@ -51,7 +51,9 @@ def check_output(folder, names=(), file: str = "", key: str = "output.name") -> 
     text = str(folder)
     if "\0" in text:
         raise CaseError("--out", "--out", text, "a folder name without NUL characters")
-    folder = Path(text or ".")
+    if not text.strip():
+        raise CaseError("--out", "--out", text, "a folder name (not empty; \".\" for this folder)")
+    folder = Path(text)
     _make_folder(folder, "--out")
     _probe_folder(folder, "--out")
     subfolders = set()

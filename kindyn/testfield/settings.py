@@ -15,6 +15,7 @@ from dataclasses import dataclass
 
 from kindyn.case.testfield_section import AXES, TESTFIELD_KEYS, TestfieldConfig
 from kindyn.errors import CaseError
+from kindyn.limits import MAX_INTEGER
 from kindyn.transforms.launch import launched_processes
 
 __all__ = ["AXES", "TESTFIELD_KEYS", "TestFieldPlan", "TestfieldConfig", "plan_from_case"]
@@ -114,6 +115,9 @@ def plan_from_case(case) -> TestFieldPlan:
                         "no reset interval with direct steady solves (set testfield.method = \"time\")")
     if s.max_time is not None and s.min_time > s.max_time:
         raise CaseError(file, "testfield.min_time", s.min_time, f"a time not above testfield.max_time = {s.max_time}")
+    if method == "time" and s.max_time is not None and s.settle_time is not None and s.settle_time >= s.max_time:
+        raise CaseError(file, "testfield.settle_time", s.settle_time,
+                        f"a time below testfield.max_time = {s.max_time:g}: no averaging block would follow it")
     wavenumbers = tuple(m * base for m in modes)
     directions, direction_modes = (axis,), (tuple(modes),)
     if s.all_directions:
@@ -126,6 +130,9 @@ def plan_from_case(case) -> TestFieldPlan:
             raise CaseError(file, "testfield.realisations", s.realisations,
                             f"1 for the {case.flow_type} flow: an ensemble needs a random flow with a seed "
                             "(e.g. \"random-helical\")")
+        if seed + s.realisations - 1 > MAX_INTEGER:  # the seeds are stored as signed 64-bit integers
+            raise CaseError(file, "flow.seed", seed, f"a seed at most {MAX_INTEGER - s.realisations + 1} for "
+                            f"testfield.realisations = {s.realisations} (the last seed must stay below 2**63)")
     return TestFieldPlan(axis, tuple(modes), wavenumbers, s.uniform, method, s.reset_interval,
                          s.settle_time, s.block_length, s.tolerance, s.min_time, s.max_time, s.samples_per_period,
                          s.solver_tolerance, s.onset_check, s.closure, directions, direction_modes,
