@@ -108,10 +108,19 @@ def _key_path(key: str) -> list[str] | None:
 EXCLUSIVE_KEYS = {("magnetic", "eta"): ("magnetic", "Rm"), ("magnetic", "Rm"): ("magnetic", "eta")}
 
 
-def apply_overrides(data: dict, overrides) -> dict:
-    """Apply ``section.key=value`` overrides; setting eta drops Rm from the file and vice versa."""
+def known_sections() -> set[str]:
+    """The section names a case may have."""
+    return set(SECTIONS) | set(FREEFORM_SECTIONS) | {"flow"}
+
+
+def apply_overrides(data: dict, overrides, file: str = "") -> dict:
+    """Apply ``section.key=value`` overrides; setting eta drops Rm from the file and vice versa. An
+    override of a section no case has is refused here, naming ``--set`` (over ``file``), not the file."""
     for text in overrides:
         parts, value = parse_override(text)
+        if parts[0] not in known_sections():
+            raise CaseError(f"--set (over {file})" if file else "--set", parts[0], "[section]",
+                            "a known section: " + ", ".join(sorted(known_sections())))
         rival = EXCLUSIVE_KEYS.get(tuple(parts))
         if rival and isinstance(data.get(rival[0]), dict):
             data[rival[0]].pop(rival[1], None)
@@ -197,7 +206,7 @@ def read_config(path, overrides=(), text: str | None = None) -> CaseConfig:
         text, data = read_toml(path)
     else:
         data = parse_toml(text, str(path))
-    data = apply_overrides(data, overrides)
+    data = apply_overrides(data, overrides, str(path))
     return validate_config(data, str(path), text, tuple(overrides))
 
 
@@ -208,7 +217,7 @@ def naming_overrides(file: str, overrides):
         yield
     except CaseError as exc:
         overridden = {".".join(parse_override(o)[0]) for o in overrides}
-        if exc.key in overridden or (exc.value == "[section]" and any(k.startswith(f"{exc.key}.") for k in overridden)):
+        if exc.key in overridden:
             raise CaseError(f"--set (over {file})", exc.key, exc.value, exc.expected) from None
         raise
 
@@ -220,7 +229,7 @@ def validate_config(data: dict, file: str, text: str = "", overrides=()) -> Case
 
 
 def _validate(data: dict, file: str, text: str, overrides: tuple[str, ...]) -> CaseConfig:
-    known = set(SECTIONS) | set(FREEFORM_SECTIONS) | {"flow"}
+    known = known_sections()
     for name, value in data.items():
         if name not in known:
             raise CaseError(file, name, "[section]", "a known section: " + ", ".join(sorted(known)))

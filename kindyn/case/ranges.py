@@ -22,6 +22,7 @@ from __future__ import annotations
 import math
 
 from kindyn.errors import CaseError
+from kindyn.limits import MAX_INTEGER
 
 MAX_SCALE_RATIO = 1e5
 MAX_DECAY_EXPONENT = {"double": 300.0, "single": 40.0}
@@ -111,3 +112,11 @@ def check_decay(config, box, flow, eta: float, Rm: float, purpose: str) -> None:
                         f"{bound} for this flow and box: otherwise the field decays by more than "
                         f"exp(-{2 * limit:.0f}) over {what} = {tau:.3g} and its energy underflows "
                         f"(eta k_min^2 tau = {exponent:.3g})")
+
+
+def check_seed_span(file: str, first_seed: int, count: int, count_key: str) -> None:
+    """Realisations use flow seeds ``first_seed .. first_seed + count - 1``, stored as signed 64-bit
+    integers: the last must stay below 2**63 (``count_key`` names where ``count`` came from)."""
+    if first_seed + count - 1 > MAX_INTEGER:
+        raise CaseError(file, "flow.seed", first_seed, f"a seed at most {MAX_INTEGER - count + 1} for {count_key} "
+                        f"(the last realisation's seed must stay below 2**63)")

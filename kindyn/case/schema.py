@@ -23,7 +23,7 @@ from typing import Any, Callable, TypeVar
 
 from kindyn.array_kernels import KERNEL_SETS, numba_unavailable_reason
 from kindyn.errors import MISSING, CaseError
-from kindyn.limits import MAGNITUDE, MAX_INTEGER, MAX_MAGNITUDE, MIN_MAGNITUDE  # kindyn/limits.py: why
+from kindyn.limits import MAGNITUDE, MAX_INTEGER, MAX_MAGNITUDE, in_range  # kindyn/limits.py: why
 from kindyn.stepping import TABLEAUX
 from kindyn.transforms import ENGINES, PLANNING_EFFORTS, PRECISIONS
 
@@ -38,7 +38,7 @@ MAX_THREADS = 4096  # numerics.threads, whatever the machine (the loader also ch
 def _in_range(v: float, what: str | None = None) -> float:
     if not math.isfinite(v):
         raise ValueError(what or "a finite number")
-    if v != 0 and not (MIN_MAGNITUDE <= abs(v) <= MAX_MAGNITUDE):
+    if not in_range(v):
         raise ValueError(what or f"a number of magnitude {MAGNITUDE} (or 0)")
     return v
 

@@ -31,13 +31,13 @@ import math
 import numpy as np
 
 from kindyn.case import load_case
+from kindyn.case.ranges import check_seed_span
 from kindyn.commands.common import (NO_ESTIMATE, Reporter, add_case_arguments, add_quiet_argument, case_from_args,
                                     clean_number, has_estimate, number_text, output_folder, results_kept,
                                     with_error)
 from kindyn.commands.progress import Progress, growth_reporter
 from kindyn.diagnostics.spectra import resolution_caution
 from kindyn.errors import CaseError
-from kindyn.limits import MAX_INTEGER
 from kindyn.output.ensemble_file import write_ensemble_file
 from kindyn.output.growth_file import result_summary, write_growth_file
 from kindyn.run import run_growth
@@ -97,9 +97,7 @@ def execute(args) -> int:
     if isinstance(first, bool) or not isinstance(first, int):
         raise CaseError(base.path, "flow.type", base.flow_type,
                         "a random flow with a seed (e.g. \"random-helical\") for an ensemble")
-    if first + args.count - 1 > MAX_INTEGER:  # the seeds are stored as signed 64-bit integers
-        raise CaseError(base.path, "flow.seed", first, f"a seed at most {MAX_INTEGER - args.count + 1} for "
-                        f"--count {args.count} (the last realisation's seed must stay below 2**63)")
+    check_seed_span(base.path, first, args.count, f"--count {args.count}")
     cases = [load_case(args.case, [*args.overrides, f"flow.seed={first + i}"]) for i in range(args.count)]
     out = output_folder(args, base, [f"{base.name}-ensemble.nc", *(f"{c.name}-seed{first + i}.nc"
                                                                   for i, c in enumerate(cases))])

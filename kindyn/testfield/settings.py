@@ -13,9 +13,9 @@ from __future__ import annotations
 import math
 from dataclasses import dataclass
 
+from kindyn.case.ranges import check_seed_span
 from kindyn.case.testfield_section import AXES, TESTFIELD_KEYS, TestfieldConfig
 from kindyn.errors import CaseError
-from kindyn.limits import MAX_INTEGER
 from kindyn.transforms.launch import launched_processes
 
 __all__ = ["AXES", "TESTFIELD_KEYS", "TestFieldPlan", "TestfieldConfig", "plan_from_case"]
@@ -130,9 +130,7 @@ def plan_from_case(case) -> TestFieldPlan:
             raise CaseError(file, "testfield.realisations", s.realisations,
                             f"1 for the {case.flow_type} flow: an ensemble needs a random flow with a seed "
                             "(e.g. \"random-helical\")")
-        if seed + s.realisations - 1 > MAX_INTEGER:  # the seeds are stored as signed 64-bit integers
-            raise CaseError(file, "flow.seed", seed, f"a seed at most {MAX_INTEGER - s.realisations + 1} for "
-                            f"testfield.realisations = {s.realisations} (the last seed must stay below 2**63)")
+        check_seed_span(file, seed, s.realisations, f"testfield.realisations = {s.realisations}")
     return TestFieldPlan(axis, tuple(modes), wavenumbers, s.uniform, method, s.reset_interval,
                          s.settle_time, s.block_length, s.tolerance, s.min_time, s.max_time, s.samples_per_period,
                          s.solver_tolerance, s.onset_check, s.closure, directions, direction_modes,
